@@ -1,0 +1,5 @@
+import sys
+
+from qcorr.cli import main
+
+sys.exit(main())

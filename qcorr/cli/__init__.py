@@ -1,0 +1,98 @@
+"""The ``qcorr`` console command: argument parsing and dispatch only, no physics.
+
+Each subcommand lives in its own module ``qcorr/cli/<name>_command.py`` that defines
+
+* ``NAME`` (the subcommand), ``HELP`` (one line),
+* ``add_arguments(parser)`` (every option documents its unit), and
+* ``run(args) -> int`` (exit status).
+
+Errors of the :class:`qcorr.errors.QcorrError` family are printed as one line,
+``qcorr: error: ...``, and give a non-zero exit status.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import shlex
+import sys
+import warnings
+from collections.abc import Sequence
+
+from qcorr import __version__
+from qcorr.errors import QcorrError, QcorrWarning
+
+#: subcommand modules, in the order they appear in ``qcorr --help``
+COMMAND_MODULES = (
+    "spectrum",
+    "combine",
+    "properties",
+    "liquid",
+    "merge",
+    "plot",
+)
+
+
+def _load_commands() -> list:
+    modules = []
+    for name in COMMAND_MODULES:
+        full = f"qcorr.cli.{name}_command"
+        try:
+            modules.append(importlib.import_module(full))
+        except ModuleNotFoundError as err:
+            if err.name != full:
+                raise
+    return modules
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="qcorr",
+        description=(
+            "Harmonic quantum corrections for classical MD: trajectory -> vibrational "
+            "density of states -> corrected heat capacity, zero-point energy, energy, "
+            "entropy and free energy. Results rest on the harmonic approximation; they "
+            "support, not replace, validated practice."
+        ),
+    )
+    parser.add_argument("--version", action="version", version=f"qcorr {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+    for module in _load_commands():
+        p = sub.add_parser(
+            module.NAME,
+            help=module.HELP,
+            description=getattr(module, "DESCRIPTION", module.HELP),
+            formatter_class=argparse.ArgumentDefaultsHelpFormatter,
+        )
+        module.add_arguments(p)
+        p.set_defaults(_run=module.run)
+    return parser
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    stream = file or sys.stderr
+    if issubclass(category, QcorrWarning):
+        print(f"qcorr: warning: {message}", file=stream)
+    else:
+        print(warnings.formatwarning(message, category, filename, lineno, line), end="", file=stream)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``qcorr`` console script."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    args.command_line = shlex.join(["qcorr", *argv])
+    warnings.showwarning = _show_warning
+    try:
+        return int(args._run(args) or 0)
+    except QcorrError as err:
+        print(f"qcorr: error: {err}", file=sys.stderr)
+        return err.exit_code
+    except KeyboardInterrupt:
+        print("qcorr: interrupted; no output was written", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

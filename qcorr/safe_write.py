@@ -1,0 +1,39 @@
+"""Write outputs atomically: to a temporary file beside the target, then rename.
+
+A failed or interrupted run therefore never leaves a half-written output, and an
+existing file is only replaced once its successor is complete.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+
+@contextlib.contextmanager
+def atomic_path(target: str | os.PathLike[str]) -> Iterator[Path]:
+    """Yield a temporary path in the target's directory; rename it onto *target* on success.
+
+    On any exception the temporary file is removed and *target* is left untouched.
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=target.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        yield tmp
+        os.replace(tmp, target)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            tmp.unlink()
+        raise
+
+
+def write_text_atomic(target: str | os.PathLike[str], text: str) -> None:
+    """Write *text* to *target* atomically (UTF-8)."""
+    with atomic_path(target) as tmp:
+        tmp.write_text(text, encoding="utf-8")
