@@ -1,0 +1,223 @@
+"""The spectrum file: the NetCDF contract between ``qcorr spectrum`` and every later step.
+
+The layout (variables, coordinates, attributes, units) is described in
+``DEVELOPERS.md`` ("The spectrum file").  This module writes it (h5netcdf engine,
+atomically, byte-reproducible: no wall-clock time is stored), reads it back and
+checks that a file really is a qcorr spectrum file before anything uses it.
+
+Everything here is I/O and bookkeeping; the physics (the segment-averaged
+spectrum estimator) lives in :mod:`qcorr.spectrum`, the normalisation to the
+degrees of freedom in :func:`normalise_spectrum`.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from qcorr.errors import SpectrumFileError
+from qcorr.safe_write import atomic_path
+
+#: value of the global attribute ``qcorr_file_kind`` in a spectrum file
+FILE_KIND = "spectrum"
+#: current layout version (global attribute ``qcorr_format_version``)
+FORMAT_VERSION = 1
+
+#: global attributes every spectrum file carries (DEVELOPERS.md, "The spectrum file")
+REQUIRED_ATTRIBUTES: tuple[str, ...] = (
+    "qcorr_file_kind",
+    "qcorr_format_version",
+    "Conventions",
+    "temperature_K",
+    "timestep_ps",
+    "frames_used",
+    "frame_start",
+    "frame_stop",
+    "frame_step",
+    "segment_frames",
+    "segment_length_ps",
+    "segment_overlap",
+    "taper",
+    "resolution_wavenumber",
+    "nyquist_wavenumber",
+    "velocity_source",
+    "input_files",
+    "diagnostics",
+    "qcorr_version",
+    "mdanalysis_version",
+    "command_line",
+    "mean_box_volume_A3",
+)
+
+#: coordinates every spectrum file carries
+REQUIRED_COORDINATES: tuple[str, ...] = ("group", "wavenumber", "frequency", "lag", "segment")
+
+#: data variables every spectrum file carries, with their dimensions
+REQUIRED_VARIABLES: dict[str, tuple[str, ...]] = {
+    "vdos": ("group", "wavenumber"),
+    "vdos_segments": ("group", "segment", "wavenumber"),
+    "vacf": ("group", "lag"),
+    "degrees_of_freedom": ("group",),
+    "constraint_count": ("group",),
+    "kinetic_temperature": ("group",),
+    "raw_integral": ("group",),
+    "atom_count": ("group",),
+    "molecule_count": ("group",),
+    "group_mass": ("group",),
+    "selection": ("group",),
+}
+
+
+def _describe(path: str | os.PathLike[str]) -> str:
+    return f"spectrum file '{os.fspath(path)}'"
+
+
+def check_spectrum(ds: xr.Dataset, path: str | os.PathLike[str] = "<in memory>") -> None:
+    """Check that *ds* follows the spectrum-file contract.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Dataset to check.
+    path : str or path-like
+        File name used in the error message.
+
+    Raises
+    ------
+    SpectrumFileError
+        If the dataset was not made by qcorr as a spectrum file, or lacks a required
+        attribute, coordinate or variable, or a variable has the wrong dimensions.
+    """
+    where = _describe(path)
+    kind = ds.attrs.get("qcorr_file_kind")
+    if kind != FILE_KIND:
+        raise SpectrumFileError(
+            f"{where} was not written by 'qcorr spectrum' (attribute qcorr_file_kind is "
+            f"{kind!r}, expected {FILE_KIND!r}); make it with 'qcorr spectrum' or 'qcorr combine'"
+        )
+    version = int(ds.attrs.get("qcorr_format_version", -1))
+    if version != FORMAT_VERSION:
+        raise SpectrumFileError(
+            f"{where} has layout version {version}, this qcorr reads version {FORMAT_VERSION}; "
+            "remake it with this qcorr's 'qcorr spectrum'"
+        )
+    for name in REQUIRED_ATTRIBUTES:
+        if name not in ds.attrs:
+            raise SpectrumFileError(
+                f"{where} lacks the global attribute '{name}'; remake it with 'qcorr spectrum'"
+            )
+    for name in REQUIRED_COORDINATES:
+        if name not in ds.coords:
+            raise SpectrumFileError(
+                f"{where} lacks the coordinate '{name}'; remake it with 'qcorr spectrum'"
+            )
+    for name, dims in REQUIRED_VARIABLES.items():
+        if name not in ds.variables:
+            raise SpectrumFileError(
+                f"{where} lacks the variable '{name}'; remake it with 'qcorr spectrum'"
+            )
+        if tuple(ds[name].dims) != dims:
+            raise SpectrumFileError(
+                f"{where}: variable '{name}' has dimensions {tuple(ds[name].dims)}, expected "
+                f"{dims}; remake it with 'qcorr spectrum'"
+            )
+    if "total" not in [str(g) for g in ds["group"].values]:
+        raise SpectrumFileError(f"{where} has no group 'total'; remake it with 'qcorr spectrum'")
+
+
+def read_spectrum(path: str | os.PathLike[str]) -> xr.Dataset:
+    """Load a spectrum file written by qcorr and check it against the contract.
+
+    Parameters
+    ----------
+    path : str or path-like
+        NetCDF file written by ``qcorr spectrum`` or ``qcorr combine``.
+
+    Returns
+    -------
+    xarray.Dataset
+        Fully loaded into memory (the file is closed again), attributes included.
+
+    Raises
+    ------
+    SpectrumFileError
+        If the file does not exist, is not readable NetCDF/HDF5, or does not follow the
+        spectrum-file contract (the message names the missing item).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise SpectrumFileError(f"{_describe(path)} does not exist; check the path")
+    try:
+        with xr.open_dataset(path, engine="h5netcdf") as opened:
+            ds = opened.load()
+    except SpectrumFileError:
+        raise
+    except Exception as err:  # h5py/h5netcdf raise OSError, ValueError, KeyError, ...
+        raise SpectrumFileError(
+            f"{_describe(path)} is not a readable NetCDF-4 file ({type(err).__name__}: "
+            f"{str(err).splitlines()[0] if str(err) else 'no detail'}); is it truncated? "
+            "remake it with 'qcorr spectrum'"
+        ) from err
+    check_spectrum(ds, path)
+    # string coordinates come back as fixed-width unicode; keep them plain str
+    return ds
+
+
+def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
+    """Write a spectrum dataset to NetCDF-4 (h5netcdf engine) atomically.
+
+    The dataset is checked against the contract first, so an incomplete dataset
+    never reaches the disk.  Writing the same dataset twice gives byte-identical
+    files (no time stamps are stored).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Spectrum dataset (see ``DEVELOPERS.md``).
+    path : str or path-like
+        Target file; replaced only once the new file is complete.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+
+    Raises
+    ------
+    SpectrumFileError
+        If *ds* does not follow the contract.
+    """
+    check_spectrum(ds, "<dataset to be written to " + os.fspath(path) + ">")
+    path = Path(path)
+    encoding = {}
+    for name in ("vdos_segments", "vacf_segments_raw", "vdos"):
+        if name in ds.variables:
+            encoding[name] = {"zlib": True, "complevel": 4}
+    with atomic_path(path) as tmp:
+        ds.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
+    return path
+
+
+def json_attribute(ds: xr.Dataset, name: str) -> object:
+    """Decode a JSON-string attribute (``input_files``, ``diagnostics``, ...).
+
+    Raises
+    ------
+    SpectrumFileError
+        If the attribute is missing or is not valid JSON.
+    """
+    try:
+        return json.loads(ds.attrs[name])
+    except KeyError as err:
+        raise SpectrumFileError(f"spectrum dataset lacks the attribute '{name}'") from err
+    except (TypeError, json.JSONDecodeError) as err:
+        raise SpectrumFileError(f"spectrum attribute '{name}' is not valid JSON") from err
+
+
+def group_names(ds: xr.Dataset) -> list[str]:
+    """Group names of a spectrum dataset as plain Python strings."""
+    return [str(g) for g in np.asarray(ds["group"].values)]
