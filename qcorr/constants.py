@@ -21,6 +21,7 @@ speed_of_light_cm_per_s: float = _sc.c * 100.0
 atomic_mass_kg: float = _sc.atomic_mass  # 1 u (dalton) in kg
 angstrom_m: float = _sc.angstrom
 picosecond_s: float = _sc.pico
+femtosecond_s: float = _sc.femto
 bar_Pa: float = _sc.bar
 
 #: second radiation constant c2 = h c / k in cm K (u = c2 * wavenumber / T)
