@@ -1,0 +1,577 @@
+"""Streaming, segment-averaged spectrum of mass-weighted velocities (Welch estimator).
+
+The trajectory is cut into segments of ``L`` frames that start every ``hop``
+frames (``overlap`` is the shared fraction).  For every segment and every group
+of channels (atoms) this module returns
+
+* the one-sided power spectral density of the weighted velocities,
+  ``P_g(nu) = sum_{j in g} w_j sum_alpha PSD[x_{j alpha}](nu)`` in
+  (weight x value^2)/Hz, tapered with a periodic Hann window or untapered, and
+* the unbiased weighted autocorrelation
+  ``C_g(k dt) = sum_{j in g} w_j sum_alpha sum_{n<L-k} x_{j alpha}[n] x_{j alpha}[n+k] / (L-k)``
+  of the untapered data (the VACF when ``w`` are masses and ``x`` velocities).
+
+Frames are fed one at a time; the estimator holds one segment plus a small
+FFT workspace, so memory does not grow with the trajectory length.
+
+Conventions
+-----------
+*Continuous one-sided density.*  With the ``L``-point DFT ``Y[m]`` of the tapered
+segment ``w[n] x[n]`` and ``f_m = m/(L dt)``, ``m = 0 .. L/2``::
+
+    P[m] = 2 dt |Y[m]|^2 / sum_n w[n]^2        (every bin doubled, DC and Nyquist too)
+
+For even ``L`` Parseval's theorem then makes the trapezoid integral over
+``f_0 .. f_{L/2}`` equal to ``sum_n w[n]^2 x[n]^2 / sum_n w[n]^2`` (the window-weighted
+mean square) exactly, and ``P[0]`` estimates the one-sided density at zero
+frequency, ``S(0) = 4 int_0^inf C(t) dt`` per unit variance, as needed by the
+Green-Kubo relation [3]_.  ``segment_frames`` must therefore be even.
+
+*Window.*  The periodic ("DFT-even") Hann window ``w[n] = (1 - cos(2 pi n/L))/2`` [2]_.
+Its DFT has three non-zero coefficients, so the tapered spectrum is the
+three-tap convolution ``Y[m] = X[m]/2 - (X[m-1] + X[m+1])/4`` of the untapered
+one.
+
+*One transform per segment.*  The untapered segment is zero-padded to ``2L``
+and transformed once with :func:`scipy.fft.rfft`.  The squared modulus gives the
+linear (not circular) autocorrelation after an inverse transform
+(Wiener-Khinchin with zero padding, [4]_); the even bins of the padded transform
+are the ``L``-point DFT ``X[m]`` from which the tapered periodogram follows by
+the convolution above.  Sums over channels are taken in the frequency domain by
+a matrix product with the (group x channel) weight matrix, so only one inverse
+transform per group is needed.
+
+No detrending: removing each segment's mean velocity would remove the
+diffusive (zero-frequency) power [1]_.
+
+References
+----------
+.. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+   spectra", IEEE Trans. Audio Electroacoust. 15, 70-73 (1967),
+   doi:10.1109/TAU.1967.1161901.
+.. [2] F. J. Harris, "On the use of windows for harmonic analysis with the discrete
+   Fourier transform", Proc. IEEE 66, 51-83 (1978), doi:10.1109/PROC.1978.10837.
+.. [3] S.-T. Lin, M. Blanco, W. A. Goddard III, "The two-phase model for calculating
+   thermodynamic properties of liquids from molecular dynamics", J. Chem. Phys.
+   119, 11792 (2003), doi:10.1063/1.1624057.
+.. [4] W. H. Press, S. A. Teukolsky, W. T. Vetterling, B. P. Flannery, Numerical
+   Recipes, 3rd ed., Cambridge University Press (2007), sections 13.2 and 13.4
+   (correlation by FFT with zero padding; power spectrum estimation).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.fft
+from numpy.typing import ArrayLike, NDArray
+
+from qcorr import constants
+from qcorr.errors import ConfigError, SamplingError, TrajectoryError
+
+__all__ = [
+    "TAPERS",
+    "FINITE_DIFFERENCE_SCHEMES",
+    "SpectrumSettings",
+    "SegmentPowers",
+    "SegmentAccumulator",
+    "segment_frames_for",
+    "segment_starts",
+    "block_range",
+    "frames_needed",
+    "finite_difference_power_transfer",
+    "vdos_per_wavenumber",
+]
+
+#: accepted values of ``SpectrumSettings.taper`` (option ``--taper``)
+TAPERS = ("hann", "none")
+#: accepted values of ``finite_difference_power_transfer(scheme=...)``
+FINITE_DIFFERENCE_SCHEMES = ("forward", "central")
+
+#: bytes of FFT workspace aimed at per chunk of channels (keeps temporaries in cache)
+_CHUNK_BYTES = 4 * 1024 * 1024
+
+
+@dataclass(frozen=True)
+class SpectrumSettings:
+    """Segmenting and tapering of the spectrum estimator.
+
+    Parameters
+    ----------
+    timestep_ps : float
+        Spacing of the frames fed in, ps (> 0).
+    segment_frames : int
+        Frames per segment ``L`` (even, >= 4).  Resolution is ``1/(L dt)``.
+    overlap : float
+        Fraction of a segment shared by consecutive segments, ``0 <= overlap < 1``.
+    taper : str
+        ``"hann"`` (periodic Hann window) or ``"none"``.
+
+    Raises
+    ------
+    ConfigError
+        Naming the option (``--segment-ps``, ``--overlap``, ``--taper``) at fault.
+    """
+
+    timestep_ps: float
+    segment_frames: int
+    overlap: float = 0.5
+    taper: str = "hann"
+
+    def __post_init__(self) -> None:
+        dt = self.timestep_ps
+        if isinstance(dt, bool) or not isinstance(dt, (int, float, np.floating, np.integer)):
+            raise ConfigError(f"time step between frames must be a number in ps, got {dt!r}")
+        if not math.isfinite(dt) or dt <= 0:
+            raise ConfigError(
+                f"time step between frames must be positive and finite, got {dt} ps; "
+                "check the trajectory's time stamps or --step"
+            )
+        L = self.segment_frames
+        if isinstance(L, bool) or not isinstance(L, (int, np.integer)):
+            raise ConfigError(f"--segment-ps: segment must be a whole number of frames, got {L!r}")
+        if L < 4:
+            raise ConfigError(
+                f"--segment-ps: a segment must hold at least 4 frames, got {L} "
+                f"(time step {dt} ps); lengthen --segment-ps"
+            )
+        if L % 2:
+            raise ConfigError(
+                f"--segment-ps: a segment must hold an even number of frames, got {L} "
+                f"(time step {dt} ps); choose --segment-ps as an even multiple of the time step"
+            )
+        ov = self.overlap
+        if isinstance(ov, bool) or not isinstance(ov, (int, float, np.floating, np.integer)):
+            raise ConfigError(f"--overlap must be a number in [0, 1), got {ov!r}")
+        if not (math.isfinite(ov) and 0.0 <= ov < 1.0):
+            raise ConfigError(f"--overlap must satisfy 0 <= overlap < 1, got {ov}")
+        if self.taper not in TAPERS:
+            raise ConfigError(
+                f"--taper {self.taper!r} is not known; use one of {', '.join(TAPERS)}"
+            )
+        if L - round(ov * L) < 1:
+            raise ConfigError(
+                f"--overlap {ov} leaves no frame between the starts of consecutive "
+                f"{L}-frame segments; lower --overlap"
+            )
+
+    @property
+    def hop_frames(self) -> int:
+        """Frames between the starts of consecutive segments, ``L - round(overlap L)`` (>= 1)."""
+        return self.segment_frames - round(self.overlap * self.segment_frames)
+
+    @property
+    def segment_ps(self) -> float:
+        """Segment length ``L dt`` in ps."""
+        return self.segment_frames * self.timestep_ps
+
+    @property
+    def resolution_Hz(self) -> float:
+        """Spacing of the frequency grid, ``1/(L dt)``, Hz."""
+        return 1.0 / (self.segment_frames * self.timestep_ps * constants.picosecond_s)
+
+    @property
+    def nyquist_Hz(self) -> float:
+        """Nyquist frequency ``1/(2 dt)``, Hz."""
+        return 0.5 / (self.timestep_ps * constants.picosecond_s)
+
+
+def segment_frames_for(segment_ps: float, timestep_ps: float) -> int:
+    """Frames per segment for a segment length in ps: the nearest even count, at least 4.
+
+    Parameters
+    ----------
+    segment_ps : float
+        Requested segment length, ps (option ``--segment-ps``).
+    timestep_ps : float
+        Spacing of the frames, ps.
+
+    Raises
+    ------
+    ConfigError
+        If either value is not positive and finite.
+    """
+    for name, value in (("--segment-ps", segment_ps), ("time step", timestep_ps)):
+        if not (math.isfinite(value) and value > 0):
+            raise ConfigError(f"{name} must be positive and finite, got {value} ps")
+    frames = 2 * round(segment_ps / timestep_ps / 2.0)
+    return max(4, int(frames))
+
+
+def segment_starts(n_frames: int, settings: SpectrumSettings) -> NDArray[np.int64]:
+    """First frame (0-based, relative to the frames fed) of every full segment.
+
+    Segments start at ``0, hop, 2 hop, ...`` while ``start + L <= n_frames``; frames
+    after the last full segment are not used.
+    """
+    n_frames = int(n_frames)
+    L, hop = settings.segment_frames, settings.hop_frames
+    if n_frames < L:
+        return np.zeros(0, dtype=np.int64)
+    return np.arange(0, n_frames - L + 1, hop, dtype=np.int64)
+
+
+def block_range(n_segments: int, block_index: int, block_count: int) -> tuple[int, int]:
+    """Contiguous share ``[first, stop)`` of the segment indices for one frame-block job.
+
+    Segments are split as evenly as possible: block ``i`` of ``N`` gets
+    ``[floor(i n/N), floor((i+1) n/N))``.  Concatenating all blocks in order gives
+    ``0 .. n_segments`` exactly once.
+
+    Parameters
+    ----------
+    n_segments : int
+        Number of full segments in the whole frame window.
+    block_index : int
+        0-based index of this block.
+    block_count : int
+        Number of blocks ``N`` (>= 1, at most ``n_segments``).
+
+    Raises
+    ------
+    ConfigError
+        Naming ``--block`` if the index is out of range or a block would be empty.
+    """
+    if block_count < 1:
+        raise ConfigError(f"--block: the number of blocks must be at least 1, got {block_count}")
+    if not 0 <= block_index < block_count:
+        raise ConfigError(
+            f"--block: block {block_index + 1} of {block_count} does not exist; "
+            f"use 1..{block_count}"
+        )
+    if block_count > n_segments:
+        raise ConfigError(
+            f"--block: {block_count} blocks but the frame window holds only {n_segments} "
+            "segments; use fewer blocks or shorter --segment-ps"
+        )
+    first = (block_index * n_segments) // block_count
+    stop = ((block_index + 1) * n_segments) // block_count
+    return first, stop
+
+
+def frames_needed(first_segment: int, stop_segment: int, settings: SpectrumSettings) -> tuple[int, int]:
+    """Relative frame range ``[start, stop)`` read by segments ``first_segment .. stop_segment-1``."""
+    if not 0 <= first_segment < stop_segment:
+        raise ConfigError(
+            f"segment range [{first_segment}, {stop_segment}) is empty or negative"
+        )
+    hop, L = settings.hop_frames, settings.segment_frames
+    return first_segment * hop, (stop_segment - 1) * hop + L
+
+
+@dataclass(frozen=True)
+class SegmentPowers:
+    """Per-segment spectra and correlations of one pass (see the module docstring).
+
+    Attributes
+    ----------
+    frequency_Hz : ndarray, shape (n_freq,)
+        ``m/(L dt)`` for ``m = 0 .. L/2``, Hz.
+    power : ndarray, shape (n_groups, n_segments, n_freq)
+        One-sided weighted PSD, (weight x value^2)/Hz; the trapezoid integral over
+        ``frequency_Hz`` equals ``mean_square``.
+    mean_square : ndarray, shape (n_groups, n_segments)
+        Window-weighted mean of ``sum_j w_j |x_j|^2``, weight x value^2.
+    correlation : ndarray, shape (n_groups, n_segments, L)
+        Unbiased weighted autocorrelation of the untapered data, weight x value^2.
+    lag_ps : ndarray, shape (L,)
+        ``k dt``, ps.
+    segment_first_frame : ndarray, shape (n_segments,)
+        Relative frame index at which each kept segment starts.
+    settings : SpectrumSettings
+    """
+
+    frequency_Hz: NDArray[np.float64]
+    power: NDArray[np.float64]
+    mean_square: NDArray[np.float64]
+    correlation: NDArray[np.float64]
+    lag_ps: NDArray[np.float64]
+    segment_first_frame: NDArray[np.int64]
+    settings: SpectrumSettings
+
+
+def taper_window(settings: SpectrumSettings) -> NDArray[np.float64]:
+    """Time-domain taper ``w[n]``, ``n = 0 .. L-1`` (periodic Hann, or ones)."""
+    L = settings.segment_frames
+    if settings.taper == "hann":
+        return 0.5 - 0.5 * np.cos(2.0 * np.pi * np.arange(L) / L)
+    return np.ones(L)
+
+
+class SegmentAccumulator:
+    """Streams frames; holds one segment (L x n_channels x n_components, float64) plus FFT workspace.
+
+    Parameters
+    ----------
+    settings : SpectrumSettings
+    weights : array_like, shape (n_channels,)
+        Weight of each channel, e.g. masses in u (finite, >= 0).
+    group_members : array_like of bool, shape (n_groups, n_channels)
+        Which channels each group sums.
+    n_components : int
+        Components per channel (3 for Cartesian velocities).
+    workers : int
+        Threads for :func:`scipy.fft.rfft`.
+    first_segment, stop_segment : int
+        Only segments ``first_segment .. stop_segment-1`` of the frame window are
+        kept (a frame block); frames must be fed from
+        ``frames_needed(first_segment, stop_segment, settings)[0]`` on.  With
+        ``stop_segment=None`` every full segment is kept.
+
+    Raises
+    ------
+    ConfigError
+        If weights, groups or segment range are unusable.
+    """
+
+    def __init__(
+        self,
+        settings: SpectrumSettings,
+        weights: ArrayLike,
+        group_members: ArrayLike,
+        n_components: int = 3,
+        workers: int = 1,
+        first_segment: int = 0,
+        stop_segment: int | None = None,
+    ) -> None:
+        weights = np.asarray(weights, dtype=np.float64)
+        members = np.asarray(group_members)
+        if weights.ndim != 1 or weights.size == 0:
+            raise ConfigError(f"weights must be a non-empty 1-d array, got shape {weights.shape}")
+        if not np.all(np.isfinite(weights)) or np.any(weights < 0):
+            bad = int(np.flatnonzero(~np.isfinite(weights) | (weights < 0))[0])
+            raise ConfigError(
+                f"weight (mass) of channel {bad} is {weights[bad]}; weights must be finite and "
+                ">= 0 (check --mass)"
+            )
+        if members.ndim != 2 or members.shape[1] != weights.size or members.shape[0] == 0:
+            raise ConfigError(
+                f"group membership must have shape (n_groups, {weights.size}), got {members.shape}"
+            )
+        if members.dtype != bool:
+            raise ConfigError("group membership must be a boolean array")
+        if int(n_components) < 1:
+            raise ConfigError(f"n_components must be >= 1, got {n_components}")
+        if int(workers) < 1:
+            raise ConfigError(f"--threads must be >= 1, got {workers}")
+        if first_segment < 0 or (stop_segment is not None and stop_segment <= first_segment):
+            raise ConfigError(
+                f"segment range [{first_segment}, {stop_segment}) is empty or negative"
+            )
+        self.settings = settings
+        self.n_channels = weights.size
+        self.n_components = int(n_components)
+        self.n_groups = members.shape[0]
+        self.workers = int(workers)
+        self.first_segment = int(first_segment)
+        self.stop_segment = None if stop_segment is None else int(stop_segment)
+
+        L = settings.segment_frames
+        rows = self.n_channels * self.n_components
+        self._rows = rows
+        # (group x row) weight matrix: one column per channel component
+        self._row_weights = np.repeat(members * weights[None, :], self.n_components, axis=1)
+        # ring buffer of one segment, frame-major: frame f lives in row f % L
+        self.buffer = np.zeros((L, rows))
+        chunk = max(8, _CHUNK_BYTES // (2 * L * 8))
+        self._chunk = min(rows, chunk)
+        # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
+        self.workspace = np.zeros((self._chunk, 2 * L))
+        window = taper_window(settings)
+        self._window_power = float(np.sum(window * window))
+        self._frames_fed = 0
+        self._power: list[NDArray[np.float64]] = []
+        self._correlation: list[NDArray[np.float64]] = []
+        self._first_frames: list[int] = []
+
+    @property
+    def frames_fed(self) -> int:
+        """Number of frames given to :meth:`add_frame` so far."""
+        return self._frames_fed
+
+    @property
+    def segments_done(self) -> int:
+        """Number of segments transformed and kept so far."""
+        return len(self._power)
+
+    def _segments_wanted(self) -> int | None:
+        if self.stop_segment is None:
+            return None
+        return self.stop_segment - self.first_segment
+
+    def add_frame(self, values: ArrayLike) -> None:
+        """Add one frame; transform and accumulate when a segment is complete.
+
+        Parameters
+        ----------
+        values : array_like, shape (n_channels, n_components)
+            E.g. velocities in Angstrom/ps (copied; the caller may reuse the array).
+        """
+        values = np.asarray(values)
+        if values.shape != (self.n_channels, self.n_components):
+            raise TrajectoryError(
+                f"frame {self._frames_fed} has values of shape {values.shape}, expected "
+                f"({self.n_channels}, {self.n_components})"
+            )
+        wanted = self._segments_wanted()
+        if wanted is not None and len(self._power) >= wanted:
+            self._frames_fed += 1  # beyond the block: not needed, not stored
+            return
+        L, hop = self.settings.segment_frames, self.settings.hop_frames
+        self.buffer[self._frames_fed % L] = values.reshape(-1)
+        self._frames_fed += 1
+        start = self._frames_fed - L
+        if start >= 0 and start % hop == 0:
+            self._transform_segment(start)
+
+    def _transform_segment(self, start: int) -> None:
+        """Transform the segment beginning at relative frame *start* (its last frame just came)."""
+        L = self.settings.segment_frames
+        half = L // 2
+        r = start % L  # ring row holding the segment's first frame
+        hann = self.settings.taper == "hann"
+        G = self.n_groups
+        corr_spectrum = np.zeros((G, L + 1))
+        power = np.zeros((G, half + 1))
+        for c0 in range(0, self._rows, self._chunk):
+            c1 = min(self._rows, c0 + self._chunk)
+            n = c1 - c0
+            work = self.workspace[:n]
+            work[:, : L - r] = self.buffer[r:, c0:c1].T
+            if r:
+                work[:, L - r : L] = self.buffer[:r, c0:c1].T
+            z = scipy.fft.rfft(work, n=2 * L, axis=-1, workers=self.workers)
+            w = self._row_weights[:, c0:c1]
+            corr_spectrum += w @ (z.real**2 + z.imag**2)
+            x = z[:, ::2]  # L-point DFT of the untapered segment, m = 0 .. L/2
+            if hann:
+                y = 0.5 * x
+                y[:, 1:-1] -= 0.25 * (x[:, :-2] + x[:, 2:])
+                # X[-1] = conj X[1] and X[L/2+1] = conj X[L/2-1] (real data)
+                y[:, 0] -= 0.5 * x[:, 1].real
+                y[:, -1] -= 0.5 * x[:, -2].real
+            else:
+                y = x
+            power += w @ (y.real**2 + y.imag**2)
+        dt_s = self.settings.timestep_ps * constants.picosecond_s
+        power *= 2.0 * dt_s / self._window_power
+        lagged = scipy.fft.irfft(corr_spectrum, n=2 * L, axis=-1)[:, :L]
+        lagged /= np.arange(L, 0, -1, dtype=np.float64)
+        self._power.append(power)
+        self._correlation.append(lagged)
+        self._first_frames.append(start)
+
+    def result(self) -> SegmentPowers:
+        """Per-segment powers and correlations of the segments kept so far.
+
+        Raises
+        ------
+        SamplingError
+            If no full segment was seen.
+        """
+        L = self.settings.segment_frames
+        if not self._power:
+            raise SamplingError(
+                f"fewer frames than one segment: got {self._frames_fed} frames, a segment "
+                f"needs {L} (--segment-ps); shorten --segment-ps or give more frames"
+            )
+        wanted = self._segments_wanted()
+        if wanted is not None and len(self._power) < wanted:
+            need = frames_needed(self.first_segment, self.stop_segment, self.settings)
+            raise SamplingError(
+                f"frame block ended early: got {self._frames_fed} frames, segments "
+                f"{self.first_segment}..{self.stop_segment - 1} need {need[1] - need[0]}; "
+                "the trajectory is shorter than when the blocks were planned"
+            )
+        dt_ps = self.settings.timestep_ps
+        frequency = np.arange(L // 2 + 1) * self.settings.resolution_Hz
+        power = np.stack(self._power, axis=1)
+        df = self.settings.resolution_Hz
+        mean_square = df * (power.sum(axis=-1) - 0.5 * (power[..., 0] + power[..., -1]))
+        hop = self.settings.hop_frames
+        return SegmentPowers(
+            frequency_Hz=frequency,
+            power=power,
+            mean_square=mean_square,
+            correlation=np.stack(self._correlation, axis=1),
+            lag_ps=np.arange(L) * dt_ps,
+            segment_first_frame=np.asarray(self._first_frames, dtype=np.int64)
+            + self.first_segment * hop,
+            settings=self.settings,
+        )
+
+
+def finite_difference_power_transfer(
+    frequency_Hz: ArrayLike, timestep_ps: float, scheme: str = "forward"
+) -> NDArray[np.float64]:
+    """Power transfer ``|H(nu)|^2`` of a finite-difference velocity estimate.
+
+    For ``x(t) = exp(i 2 pi nu t)`` sampled every ``dt``:
+
+    * forward (half-step) difference ``(x[n+1] - x[n])/dt``:
+      ``|H|^2 = sinc^2(pi nu dt)``;
+    * central difference ``(x[n+1] - x[n-1])/(2 dt)``: ``|H|^2 = sinc^2(2 pi nu dt)``,
+
+    with ``sinc z = sin z / z``.  Dividing a spectrum of differenced positions by
+    ``|H|^2`` restores the spectrum of the true velocity (for unaliased signals);
+    the central factor vanishes at Nyquist.
+
+    Parameters
+    ----------
+    frequency_Hz : array_like
+        Frequencies, Hz.
+    timestep_ps : float
+        Spacing of the positions that were differenced, ps.
+    scheme : {"forward", "central"}
+
+    Returns
+    -------
+    ndarray
+        Dimensionless factor, same shape as *frequency_Hz*.
+
+    References
+    ----------
+    A. V. Oppenheim, R. W. Schafer, Discrete-Time Signal Processing, 3rd ed.,
+    Pearson (2010), frequency response of a first-difference system (common practice).
+    """
+    if scheme not in FINITE_DIFFERENCE_SCHEMES:
+        raise ConfigError(
+            f"finite-difference scheme {scheme!r} is not known; use one of "
+            f"{', '.join(FINITE_DIFFERENCE_SCHEMES)}"
+        )
+    nu_dt = np.asarray(frequency_Hz, dtype=np.float64) * (timestep_ps * constants.picosecond_s)
+    if scheme == "central":
+        nu_dt = 2.0 * nu_dt
+    return np.sinc(nu_dt) ** 2  # numpy sinc(a) = sin(pi a)/(pi a)
+
+
+#: (u Angstrom^2 ps^-2) expressed in J
+_U_A2_PER_PS2_J = constants.atomic_mass_kg * (constants.angstrom_m / constants.picosecond_s) ** 2
+
+
+def vdos_per_wavenumber(power: ArrayLike, temperature_K: float) -> NDArray[np.float64]:
+    """VDOS per unit wavenumber from mass-weighted velocity power.
+
+    ``S_nu = power / (k T)`` per Hz and ``S(wavenumber) = c S_nu`` with ``c`` in cm/s,
+    so that the trapezoid integral over wavenumber (cm^-1) equals
+    ``sum_j m_j <v_j^2> / (k T)`` (the degrees of freedom at equipartition) [3]_.
+
+    Parameters
+    ----------
+    power : array_like
+        One-sided mass-weighted velocity PSD, (u Angstrom^2 ps^-2)/Hz.
+    temperature_K : float
+        Temperature, K (> 0).
+
+    Returns
+    -------
+    ndarray
+        VDOS in cm (i.e. per cm^-1), same shape as *power*.
+    """
+    if not (math.isfinite(temperature_K) and temperature_K > 0):
+        raise ConfigError(f"--temperature must be positive and finite, got {temperature_K} K")
+    kT = constants.boltzmann_J_per_K * temperature_K
+    factor = _U_A2_PER_PS2_J / kT * constants.speed_of_light_cm_per_s
+    return np.asarray(power, dtype=np.float64) * factor
