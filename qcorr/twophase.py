@@ -1,0 +1,599 @@
+"""Two-phase thermodynamics (2PT) of liquids from a density of states.
+
+The 2PT model splits a diffusive density of states (DoS) ``S(ν)`` into a
+gas-like part, modelled as a hard-sphere (HS) gas whose velocity
+autocorrelation decays exponentially (Enskog), and a solid-like remainder that
+is weighted as a set of harmonic oscillators (Lin, Blanco, Goddard 2003 [1]_).
+Molecular fluids apply the split to the centre-of-mass (translational) and the
+rotational DoS; the intramolecular vibrational DoS is purely solid-like
+(Lin, Maiti, Goddard 2010 [2]_).
+
+Conventions (all functions, no I/O here):
+
+* DoS per unit wavenumber, one-sided, in cm (cm⁻¹ on the axis), normalised so
+  that its trapezoid integral is the number of degrees of freedom (dof) of the
+  set of molecules it describes.
+* ``S(0)`` values are per unit wavenumber (cm) unless the name says seconds.
+* Results are per molecule in units of k (entropy, heat capacity) or kT
+  (energies); conversions to J/(mol K) and kJ/mol use ``qcorr.constants``.
+
+Choices that the literature does not settle are explicit arguments, and the
+defaults follow the published 2PT papers as reproduced in the team notes
+(``methods.md`` §3; the exact printed typography of [1]_ and [2]_ was not
+re-read for this implementation — see ``hard_sphere_entropy``):
+
+* ``hard_sphere_form="published"`` keeps the ``ln z(y)`` term inside the
+  logarithm of the HS entropy (the reference ideal gas is taken at the
+  pressure of the HS gas); ``"constant-volume"`` drops it, which is the
+  Carnahan–Starling entropy of fN hard spheres in the volume V at fixed
+  (N, V, T) [3]_.  The two differ by ``k ln z`` per gas particle.
+* ``gas_volume="gas-particles"`` uses V/(fN) (the volume per *gas* particle,
+  consistent with the gas packing fraction y, which is computed from the gas
+  density fN/V); ``"all-particles"`` uses V/N.
+* The rotational fluidicity is either obtained from the rotational S(0) with
+  the same Δ → f equation (default, as described for [2]_ in the team notes)
+  or set equal to the translational fluidicity.
+
+References
+----------
+.. [1] S.-T. Lin, M. Blanco, W. A. Goddard III, "The two-phase model for
+   calculating thermodynamic properties of liquids from molecular dynamics:
+   Validation for the phase diagram of Lennard-Jones fluids",
+   J. Chem. Phys. 119, 11792 (2003). doi:10.1063/1.1624057
+.. [2] S.-T. Lin, P. K. Maiti, W. A. Goddard III, "Two-phase thermodynamic
+   model for efficient and accurate absolute entropy of water from molecular
+   dynamics simulations", J. Phys. Chem. B 114, 8191 (2010).
+   doi:10.1021/jp103120q
+.. [3] N. F. Carnahan, K. E. Starling, "Equation of state for nonattracting
+   rigid spheres", J. Chem. Phys. 51, 635 (1969). doi:10.1063/1.1672048
+.. [4] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, "Thermodynamics
+   and quantum corrections from molecular dynamics for liquid water",
+   J. Chem. Phys. 79, 2375 (1983). doi:10.1063/1.446100
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from scipy.optimize import brentq
+
+from qcorr import constants as C
+from qcorr.errors import ConfigError, PhysicsError
+
+HARD_SPHERE_FORMS = ("published", "constant-volume")
+GAS_VOLUME_CHOICES = ("gas-particles", "all-particles")
+ROTATIONAL_FLUIDICITY_CHOICES = ("from-rotation", "same-as-translation")
+SOLID_WEIGHTS = ("quantum", "classical")
+
+__all__ = [
+    "GAS_VOLUME_CHOICES",
+    "HARD_SPHERE_FORMS",
+    "ROTATIONAL_FLUIDICITY_CHOICES",
+    "ComponentResult",
+    "carnahan_starling_compressibility",
+    "fluidicity",
+    "fluidicity_equation",
+    "gas_dos",
+    "gas_packing_fraction",
+    "hard_sphere_entropy",
+    "normalized_diffusivity",
+    "rigid_rotor_entropy",
+    "rotational_temperatures",
+    "self_diffusion_from_zero_frequency",
+    "two_phase_component",
+    "vibrational_component",
+    "weighted_integral",
+]
+
+
+# --------------------------------------------------------------------------
+# harmonic weighting functions of u = h nu / kT (Berens et al. [4], Eqs. as in
+# methods.md §1.1; stable forms of §1.4).  Kept private here until a shared
+# module provides them.
+# --------------------------------------------------------------------------
+
+
+def _log1mexp(u: NDArray[np.float64]) -> NDArray[np.float64]:
+    """ln(1 - exp(-u)) for u > 0 without cancellation (Mächler 2012 recipe)."""
+    return np.where(u <= math.log(2.0), np.log(-np.expm1(-u)), np.log1p(-np.exp(-u)))
+
+
+def _weights(u: NDArray[np.float64], kind: str) -> dict[str, NDArray[np.float64]]:
+    """Per-mode weights for entropy (k), energy (kT) and heat capacity (k); u > 0."""
+    if kind == "classical":
+        one = np.ones_like(u)
+        return {"entropy": 1.0 - np.log(u), "energy": one, "heat_capacity": one}
+    bose = u * np.exp(-u) / (-np.expm1(-u))  # u/(e^u - 1)
+    return {
+        "entropy": bose - _log1mexp(u),
+        "energy": 0.5 * u + bose,
+        "heat_capacity": u * u * np.exp(-u) / np.expm1(-u) ** 2,
+    }
+
+
+_GAUSS_X, _GAUSS_W = np.polynomial.legendre.leggauss(24)
+
+
+def weighted_integral(
+    wavenumber_cm: ArrayLike,
+    dos_cm: ArrayLike,
+    temperature_K: float,
+    weights: str = "quantum",
+) -> dict[str, float]:
+    """Integrals of a DoS against the harmonic weighting functions.
+
+    Parameters
+    ----------
+    wavenumber_cm : array (n,)
+        Evenly or unevenly spaced, increasing grid in cm⁻¹ starting at 0.
+    dos_cm : array (..., n)
+        DoS per unit wavenumber (cm); leading axes are kept.
+    temperature_K : float
+        Temperature in K that enters u = hcν̃/kT.
+    weights : {"quantum", "classical"}
+        Quantum harmonic oscillator or classical harmonic oscillator weights.
+
+    Returns
+    -------
+    dict
+        ``entropy`` (units of k), ``energy`` (units of kT, zero-point energy
+        included for quantum weights; equals the dof for classical weights),
+        ``heat_capacity`` (units of k), ``energy_minus_classical`` (kT;
+        ∫S (W_E − 1) dν̃), and ``dof`` (∫S dν̃).  Arrays keep the leading axes.
+
+    Notes
+    -----
+    The entropy weight diverges logarithmically at ν → 0 (``methods.md`` §1.5),
+    so it is never evaluated at ν = 0: the interval [ν₀, ν₁] is integrated with
+    24-point Gauss–Legendre quadrature of the linearly interpolated DoS (nodes
+    avoid the end points), every other interval with the trapezoid rule.
+    """
+    if weights not in SOLID_WEIGHTS:
+        raise ConfigError(f"weights={weights!r} is not one of {SOLID_WEIGHTS}")
+    x = np.asarray(wavenumber_cm, dtype=float)
+    s = np.asarray(dos_cm, dtype=float)
+    if x.ndim != 1 or x.size < 3 or s.shape[-1] != x.size:
+        raise ConfigError("wavenumber grid must be 1-D with >= 3 points matching the DoS")
+    if temperature_K <= 0:
+        raise ConfigError(f"temperature {temperature_K} K must be positive")
+    if x[0] != 0.0:
+        raise ConfigError("wavenumber grid must start at 0 cm-1")
+    c2 = C.second_radiation_constant_cm_K
+    u = c2 * x[1:] / temperature_K
+    w = _weights(u, weights)
+    dx = np.diff(x)
+    # first interval: Gauss-Legendre on the linear interpolant of S
+    xg = 0.5 * x[1] * (_GAUSS_X + 1.0)
+    sg = s[..., :1] + (s[..., 1:2] - s[..., :1]) * (xg / x[1])
+    wg = _weights(c2 * xg / temperature_K, weights)
+    out: dict[str, float] = {}
+    for name in ("entropy", "energy", "heat_capacity"):
+        first = 0.5 * x[1] * np.sum(sg * wg[name] * _GAUSS_W, axis=-1)
+        f = s[..., 1:] * w[name]
+        rest = np.sum(0.5 * (f[..., 1:] + f[..., :-1]) * dx[1:], axis=-1)
+        out[name] = first + rest
+    out["dof"] = np.trapezoid(s, x, axis=-1)
+    out["energy_minus_classical"] = out["energy"] - out["dof"] if weights == "quantum" else (
+        0.0 * out["dof"]
+    )
+    return out
+
+
+# --------------------------------------------------------------------------
+# diffusivity and fluidicity (Lin, Blanco, Goddard 2003 [1])
+# --------------------------------------------------------------------------
+
+
+def self_diffusion_from_zero_frequency(
+    zero_frequency_dos_cm: float, molecule_count: float, temperature_K: float, mass_u: float
+) -> float:
+    """Self-diffusion coefficient D (m²/s) from the translational DoS at ν = 0.
+
+    Green–Kubo gives ``S(0) = 12 m N D / kT`` for the DoS per unit frequency
+    (``methods.md`` §2.5); per unit wavenumber ``S̃(0) = c S(0)``.
+    """
+    s0_s = zero_frequency_dos_cm / C.speed_of_light_cm_per_s
+    mass_kg = mass_u * C.atomic_mass_kg
+    return s0_s * C.boltzmann_J_per_K * temperature_K / (12.0 * mass_kg * molecule_count)
+
+
+def normalized_diffusivity(
+    zero_frequency_dos_cm: float,
+    molecule_count: float,
+    temperature_K: float,
+    mass_u: float,
+    volume_A3: float,
+) -> float:
+    """Normalised diffusivity Δ of Lin, Blanco, Goddard [1]_ (dimensionless).
+
+    ``Δ = (2 S(0) / 9N) (π k T / m)^{1/2} (N/V)^{1/3} (6/π)^{2/3}`` with S(0) the
+    DoS per unit frequency (s) of N particles of mass m in volume V.  Δ is the
+    ratio of the self-diffusivity to the dilute hard-sphere diffusivity at the
+    diameter where the packing fraction of the whole density is 1.
+
+    Parameters
+    ----------
+    zero_frequency_dos_cm : float
+        S̃(0), DoS per unit wavenumber at ν = 0, in cm (integral of the DoS = 3N
+        for translation).
+    molecule_count : float
+        N.
+    temperature_K, mass_u, volume_A3 : float
+        T in K, particle mass in u (g/mol), volume in Å³.
+    """
+    for name, value in (
+        ("molecule count", molecule_count),
+        ("temperature (K)", temperature_K),
+        ("mass (u)", mass_u),
+        ("volume (A^3)", volume_A3),
+    ):
+        if not (value > 0 and math.isfinite(value)):
+            raise PhysicsError(f"2PT needs a positive {name}; got {value}")
+    s0_s = zero_frequency_dos_cm / C.speed_of_light_cm_per_s
+    mass_kg = mass_u * C.atomic_mass_kg
+    density = molecule_count / (volume_A3 * C.angstrom_m**3)
+    return (
+        (2.0 * s0_s / (9.0 * molecule_count))
+        * math.sqrt(math.pi * C.boltzmann_J_per_K * temperature_K / mass_kg)
+        * density ** (1.0 / 3.0)
+        * (6.0 / math.pi) ** (2.0 / 3.0)
+    )
+
+
+def fluidicity_equation(f: float, delta: float) -> float:
+    """Left-hand side of the universal fluidicity equation of [1]_.
+
+    ``2Δ^{-9/2} f^{15/2} − 6Δ^{-3} f^5 − Δ^{-3/2} f^{7/2} + 6Δ^{-3/2} f^{5/2} + 2f − 2``;
+    its root in (0, 1) is the fluidicity.  With ``y = f^{5/2}/Δ^{3/2}`` it equals
+    ``2(y − 1)³ + f(2 − y)``, i.e. ``f = (1 − y)³/(1 − y/2)``.
+    """
+    return (
+        2.0 * delta**-4.5 * f**7.5
+        - 6.0 * delta**-3.0 * f**5
+        - delta**-1.5 * f**3.5
+        + 6.0 * delta**-1.5 * f**2.5
+        + 2.0 * f
+        - 2.0
+    )
+
+
+def fluidicity(delta: float) -> float:
+    """Fluidicity f(Δ) in (0, 1), solved by bracketing (Brent) on [0, 1].
+
+    The equation is −2 at f = 0 and positive at f = 1 for every Δ > 0
+    (``methods.md`` §3.1), so a root always lies in the bracket.  Δ = 0 gives
+    f = 0 (a solid).
+
+    Examples
+    --------
+    >>> round(fluidicity(1.0), 6)
+    0.541187
+    """
+    if not (delta >= 0 and math.isfinite(delta)):
+        raise PhysicsError(f"normalised diffusivity must be finite and >= 0; got {delta}")
+    if delta == 0.0:
+        return 0.0
+    # written in y to avoid overflow of delta**-4.5 for tiny delta
+    def g(f: float) -> float:
+        y = f**2.5 / delta**1.5
+        return 2.0 * (y - 1.0) ** 3 + f * (2.0 - y)
+
+    return float(brentq(g, 0.0, 1.0, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200))
+
+
+def gas_packing_fraction(f: float, delta: float) -> float:
+    """Packing fraction y = f^{5/2}/Δ^{3/2} of the hard-sphere gas part [1]_."""
+    if delta == 0.0:
+        return 0.0
+    return f**2.5 / delta**1.5
+
+
+def carnahan_starling_compressibility(y: float) -> float:
+    """Carnahan–Starling compressibility factor z = (1 + y + y² − y³)/(1 − y)³ [3]_."""
+    return (1.0 + y + y * y - y**3) / (1.0 - y) ** 3
+
+
+def gas_dos(
+    wavenumber_cm: ArrayLike, zero_frequency_dos_cm: float, gas_dof: float
+) -> NDArray[np.float64]:
+    """Hard-sphere (Enskog) gas DoS per unit wavenumber (cm).
+
+    ``S_g(ν̃) = S̃(0) / [1 + (π S̃(0) ν̃ / (2 G))²]`` where G is the number of gas
+    degrees of freedom (3fN for translation [1]_; the same form with the
+    rotational dof for rotation).  It is the one-sided transform of an
+    exponentially decaying VACF, has S_g(0) = S̃(0) and integrates to G over
+    [0, ∞).
+    """
+    x = np.asarray(wavenumber_cm, dtype=float)
+    if gas_dof <= 0 or zero_frequency_dos_cm <= 0:
+        return np.zeros_like(x)
+    return zero_frequency_dos_cm / (1.0 + (math.pi * zero_frequency_dos_cm * x / (2.0 * gas_dof)) ** 2)
+
+
+# --------------------------------------------------------------------------
+# gas-part entropies
+# --------------------------------------------------------------------------
+
+
+def _thermal_wavelength_m(temperature_K: float, mass_u: float) -> float:
+    mass_kg = mass_u * C.atomic_mass_kg
+    return C.planck_J_s / math.sqrt(2.0 * math.pi * mass_kg * C.boltzmann_J_per_K * temperature_K)
+
+
+def hard_sphere_entropy(
+    temperature_K: float,
+    mass_u: float,
+    volume_per_particle_A3: float,
+    packing_fraction: float,
+    form: str = "published",
+) -> float:
+    """Entropy per hard-sphere gas particle in units of k.
+
+    ``S/k = 5/2 + ln[Λ⁻³ v z(y)] + y(3y − 4)/(1 − y)²`` for ``form="published"``
+    (the 2PT form of [1]_, [2]_ as reproduced in ``methods.md`` §3.2 — the
+    reference ideal gas is at the HS pressure, hence ``ln z``);
+    ``form="constant-volume"`` omits ``ln z(y)`` (Carnahan–Starling excess
+    entropy at fixed N, V, T [3]_).  With y = 0 both reduce to the
+    Sackur–Tetrode entropy.
+
+    Parameters
+    ----------
+    temperature_K, mass_u : float
+        T in K, particle mass in u.
+    volume_per_particle_A3 : float
+        v in Å³ (V/(fN) or V/N; see the module notes).
+    packing_fraction : float
+        y in [0, 1).
+    form : {"published", "constant-volume"}
+    """
+    if form not in HARD_SPHERE_FORMS:
+        raise ConfigError(f"hard-sphere entropy form {form!r} is not one of {HARD_SPHERE_FORMS}")
+    y = float(packing_fraction)
+    if not 0.0 <= y < 1.0:
+        raise PhysicsError(f"hard-sphere packing fraction {y} is outside [0, 1)")
+    lam = _thermal_wavelength_m(temperature_K, mass_u)
+    v = volume_per_particle_A3 * C.angstrom_m**3
+    log_arg = v / lam**3
+    if form == "published":
+        log_arg *= carnahan_starling_compressibility(y)
+    return 2.5 + math.log(log_arg) + y * (3.0 * y - 4.0) / (1.0 - y) ** 2
+
+
+def rotational_temperatures(principal_moments_u_A2: ArrayLike) -> NDArray[np.float64]:
+    """Rotational temperatures Θ = h²/(8π² I k) in K from moments in u Å²."""
+    moments = np.asarray(principal_moments_u_A2, dtype=float) * C.atomic_mass_kg * C.angstrom_m**2
+    return C.planck_J_s**2 / (8.0 * math.pi**2 * moments * C.boltzmann_J_per_K)
+
+
+def rigid_rotor_entropy(
+    temperature_K: float, rotational_temperatures_K: ArrayLike, symmetry_number: int
+) -> float:
+    """Classical (high-temperature) rigid-rotor entropy per molecule in units of k.
+
+    Nonlinear (three Θ): ``S/k = ln[(π^{1/2}/σ) (T³/(Θ_A Θ_B Θ_C))^{1/2}] + 3/2``;
+    linear (one Θ): ``S/k = ln[T/(σ Θ)] + 1`` (McQuarrie, Statistical Mechanics,
+    2000, Ch. 8; as used for the rotational gas part in [2]_).
+    """
+    theta = np.atleast_1d(np.asarray(rotational_temperatures_K, dtype=float))
+    if symmetry_number < 1:
+        raise ConfigError(f"symmetry number must be an integer >= 1; got {symmetry_number}")
+    if np.any(~np.isfinite(theta)) or np.any(theta <= 0):
+        raise PhysicsError(f"rotational temperatures must be positive; got {theta.tolist()}")
+    if theta.size == 1:
+        return math.log(temperature_K / (symmetry_number * theta[0])) + 1.0
+    if theta.size == 3:
+        return (
+            math.log(math.sqrt(math.pi) / symmetry_number * math.sqrt(temperature_K**3 / np.prod(theta)))
+            + 1.5
+        )
+    raise PhysicsError(f"need 1 (linear) or 3 (nonlinear) rotational temperatures; got {theta.size}")
+
+
+# --------------------------------------------------------------------------
+# one component (translation, rotation or vibration) of one molecule type
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ComponentResult:
+    """2PT result for one motion component of one molecule type, per molecule.
+
+    Attributes
+    ----------
+    component : str
+        ``"translation"``, ``"rotation"`` or ``"vibration"``.
+    dof_per_molecule : float
+        ∫S dν̃ / N (3, 2 or 3, or the vibrational dof).
+    normalized_diffusivity, fluidicity, packing_fraction : float
+        Δ, f, y (0 for vibration).
+    entropy, entropy_classical : float
+        Per molecule, units of k; quantum or classical harmonic weights on the
+        solid part; the gas part is the same in both.
+    gas_entropy, solid_entropy, solid_entropy_classical : float
+        Parts of the above (k per molecule).
+    heat_capacity, heat_capacity_classical : float
+        Per molecule, units of k.
+    energy_minus_classical : float
+        ∫S_s (W_E^q − 1) dν̃ / N in units of kT: the quantum energy (zero-point
+        included) minus the classical MD energy of this component.
+    zero_point_energy : float
+        ∫S_s u/2 dν̃ / N in units of kT.
+    solid_dos_minimum : float
+        Smallest value of the solid-like DoS (cm, per molecule); negative
+        values show where the HS gas exceeds the DoS.
+    gas_dos, solid_dos : ndarray
+        DoS of the parts for all N molecules (cm).
+    """
+
+    component: str
+    dof_per_molecule: float
+    normalized_diffusivity: float
+    fluidicity: float
+    packing_fraction: float
+    entropy: float
+    entropy_classical: float
+    gas_entropy: float
+    solid_entropy: float
+    solid_entropy_classical: float
+    heat_capacity: float
+    heat_capacity_classical: float
+    energy_minus_classical: float
+    zero_point_energy: float
+    solid_dos_minimum: float
+    gas_dos: NDArray[np.float64] = field(repr=False)
+    solid_dos: NDArray[np.float64] = field(repr=False)
+
+
+def _solid_result(
+    component: str,
+    wavenumber_cm: NDArray[np.float64],
+    solid: NDArray[np.float64],
+    gas: NDArray[np.float64],
+    molecule_count: float,
+    temperature_K: float,
+    dof: float,
+    delta: float,
+    f: float,
+    y: float,
+    gas_entropy_total: float,
+    gas_dof: float,
+) -> ComponentResult:
+    q = weighted_integral(wavenumber_cm, solid, temperature_K, "quantum")
+    c = weighted_integral(wavenumber_cm, solid, temperature_K, "classical")
+    u = C.second_radiation_constant_cm_K * wavenumber_cm / temperature_K
+    zpe = float(np.trapezoid(solid * 0.5 * u, wavenumber_cm))
+    n = molecule_count
+    # gas part: W_E = W_Cv = 1/2 per gas dof (ideal hard-sphere gas / free rotor)
+    return ComponentResult(
+        component=component,
+        dof_per_molecule=dof / n,
+        normalized_diffusivity=delta,
+        fluidicity=f,
+        packing_fraction=y,
+        entropy=(q["entropy"] + gas_entropy_total) / n,
+        entropy_classical=(c["entropy"] + gas_entropy_total) / n,
+        gas_entropy=gas_entropy_total / n,
+        solid_entropy=q["entropy"] / n,
+        solid_entropy_classical=c["entropy"] / n,
+        heat_capacity=(q["heat_capacity"] + 0.5 * gas_dof) / n,
+        heat_capacity_classical=(c["heat_capacity"] + 0.5 * gas_dof) / n,
+        energy_minus_classical=q["energy_minus_classical"] / n,
+        zero_point_energy=zpe / n,
+        solid_dos_minimum=float(np.min(solid)) / n,
+        gas_dos=gas,
+        solid_dos=solid,
+    )
+
+
+def two_phase_component(
+    component: str,
+    wavenumber_cm: ArrayLike,
+    dos_cm: ArrayLike,
+    *,
+    molecule_count: float,
+    temperature_K: float,
+    mass_u: float,
+    volume_A3: float,
+    zero_frequency_dos_cm: float | None = None,
+    fluidicity_value: float | None = None,
+    principal_moments_u_A2: ArrayLike | None = None,
+    symmetry_number: int = 1,
+    hard_sphere_form: str = "published",
+    gas_volume: str = "gas-particles",
+) -> ComponentResult:
+    """Split a translational or rotational DoS into HS gas + solid and weight both.
+
+    Parameters
+    ----------
+    component : {"translation", "rotation"}
+    wavenumber_cm, dos_cm : arrays (n,)
+        Grid from 0 cm⁻¹ and the DoS of all N molecules (cm); ∫ = dof.
+    molecule_count : float
+        N.
+    temperature_K, mass_u, volume_A3 : float
+        T (K), molecular mass (u), mean volume (Å³).
+    zero_frequency_dos_cm : float, optional
+        S̃(0) (cm) to use in Δ and in the gas DoS; default ``dos_cm[0]``.  Pass
+        ``12 m N D c/kT`` to use a diffusion coefficient from the MSD.
+    fluidicity_value : float, optional
+        Use this f instead of solving for it (rotation with
+        ``same-as-translation``).
+    principal_moments_u_A2 : array (3,) or (2,), optional
+        Mean principal moments for rotation; 2 values (equal, perpendicular)
+        or a DoS with 2 dof per molecule mean a linear rotor.
+    symmetry_number : int
+        Rotational symmetry number σ.
+    hard_sphere_form, gas_volume : str
+        See :func:`hard_sphere_entropy` and the module notes.
+
+    Returns
+    -------
+    ComponentResult
+
+    Notes
+    -----
+    Gas weights per gas dof: W_S = S_gas/(k · dof per molecule) with S_gas the HS
+    entropy (translation) or rigid-rotor entropy (rotation), W_E = W_Cv = 1/2
+    [1]_, [2]_.  The solid part ``S − S_g`` keeps its sign (a negative
+    low-frequency remainder is reported, not clipped).
+    """
+    if component not in ("translation", "rotation"):
+        raise ConfigError(f"component {component!r} must be 'translation' or 'rotation'")
+    if gas_volume not in GAS_VOLUME_CHOICES:
+        raise ConfigError(f"gas volume choice {gas_volume!r} is not one of {GAS_VOLUME_CHOICES}")
+    x = np.asarray(wavenumber_cm, dtype=float)
+    s = np.asarray(dos_cm, dtype=float)
+    n = float(molecule_count)
+    dof = float(np.trapezoid(s, x))
+    dof_per_molecule = round(dof / n) if n > 0 else 0
+    s0 = float(s[0]) if zero_frequency_dos_cm is None else float(zero_frequency_dos_cm)
+    if s0 < 0 or not math.isfinite(s0):
+        raise PhysicsError(f"{component}: DoS at zero frequency is {s0} cm; it must be >= 0")
+    delta = normalized_diffusivity(s0, n, temperature_K, mass_u, volume_A3)
+    if fluidicity_value is None:
+        f = fluidicity(delta)
+    else:
+        f = float(fluidicity_value)
+        if not 0.0 <= f <= 1.0:
+            raise PhysicsError(f"{component}: fluidicity {f} outside [0, 1]")
+    y = gas_packing_fraction(f, delta)
+    if component == "translation" and not y < 1.0:
+        raise PhysicsError(f"translation: gas packing fraction {y:.3f} >= 1 for f={f}, delta={delta}")
+    gas_dof = f * dof_per_molecule * n
+    gas = gas_dos(x, s0, gas_dof)
+    solid = s - gas
+    if f <= 0.0:
+        gas_entropy_total = 0.0
+    elif component == "translation":
+        per = volume_A3 / (f * n) if gas_volume == "gas-particles" else volume_A3 / n
+        gas_entropy_total = f * n * hard_sphere_entropy(
+            temperature_K, mass_u, per, y, hard_sphere_form
+        )
+    else:
+        if principal_moments_u_A2 is None:
+            raise PhysicsError("rotation: principal moments of inertia are needed for the gas part")
+        moments = np.asarray(principal_moments_u_A2, dtype=float)
+        if dof_per_molecule == 2 or moments.size == 2:
+            theta = rotational_temperatures([float(np.max(moments))])
+        else:
+            theta = rotational_temperatures(moments)
+        gas_entropy_total = f * n * rigid_rotor_entropy(temperature_K, theta, symmetry_number)
+    return _solid_result(
+        component, x, solid, gas, n, temperature_K, dof, delta, f, y, gas_entropy_total, gas_dof
+    )
+
+
+def vibrational_component(
+    wavenumber_cm: ArrayLike, dos_cm: ArrayLike, *, molecule_count: float, temperature_K: float
+) -> ComponentResult:
+    """Intramolecular vibration: the whole DoS is solid-like (harmonic weights)."""
+    x = np.asarray(wavenumber_cm, dtype=float)
+    s = np.asarray(dos_cm, dtype=float)
+    dof = float(np.trapezoid(s, x))
+    return _solid_result(
+        "vibration", x, s, np.zeros_like(s), float(molecule_count), temperature_K, dof,
+        0.0, 0.0, 0.0, 0.0, 0.0,
+    )
