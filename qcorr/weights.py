@@ -145,8 +145,9 @@ def _log1mexp(u: FloatArray) -> FloatArray:
 
 def _times_exp_minus(prefactor: FloatArray, u: FloatArray) -> FloatArray:
     """prefactor * e^-u, as (prefactor e^-u/2) e^-u/2 so nothing is subnormal too early."""
-    half = np.exp(-0.5 * u)
-    return (prefactor * half) * half
+    with np.errstate(under="ignore"):  # values below ~5e-324 are 0, as they should be
+        half = np.exp(-0.5 * u)
+        return (prefactor * half) * half
 
 
 # ---------------------------------------------------------------- thermal energy
