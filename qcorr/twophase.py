@@ -61,6 +61,7 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import brentq
 
 from qcorr import constants as C
+from qcorr import weights
 from qcorr.errors import ConfigError, PhysicsError
 
 HARD_SPHERE_FORMS = ("published", "constant-volume")
@@ -89,28 +90,23 @@ __all__ = [
 ]
 
 
-# --------------------------------------------------------------------------
-# harmonic weighting functions of u = h nu / kT (Berens et al. [4], Eqs. as in
-# methods.md §1.1; stable forms of §1.4).  Kept private here until a shared
-# module provides them.
-# --------------------------------------------------------------------------
-
-
-def _log1mexp(u: NDArray[np.float64]) -> NDArray[np.float64]:
-    """ln(1 - exp(-u)) for u > 0 without cancellation (Mächler 2012 recipe)."""
-    return np.where(u <= math.log(2.0), np.log(-np.expm1(-u)), np.log1p(-np.exp(-u)))
-
-
 def _weights(u: NDArray[np.float64], kind: str) -> dict[str, NDArray[np.float64]]:
-    """Per-mode weights for entropy (k), energy (kT) and heat capacity (k); u > 0."""
+    """Per-mode weights (Berens et al. [4]_, from :mod:`qcorr.weights`); u > 0.
+
+    Entropy in k, energy in kT (zero-point energy included), heat capacity in k.
+    """
     if kind == "classical":
-        one = np.ones_like(u)
-        return {"entropy": 1.0 - np.log(u), "energy": one, "heat_capacity": one}
-    bose = u * np.exp(-u) / (-np.expm1(-u))  # u/(e^u - 1)
+        return {
+            "entropy": weights.entropy_classical(u),
+            "energy": weights.energy_classical(u),
+            "heat_capacity": weights.heat_capacity_classical(u),
+            "energy_minus_classical": np.zeros_like(u),
+        }
     return {
-        "entropy": bose - _log1mexp(u),
-        "energy": 0.5 * u + bose,
-        "heat_capacity": u * u * np.exp(-u) / np.expm1(-u) ** 2,
+        "entropy": weights.entropy_quantum(u),
+        "energy": weights.energy_quantum(u),
+        "heat_capacity": weights.heat_capacity_quantum(u),
+        "energy_minus_classical": weights.energy_correction(u),
     }
 
 
@@ -121,7 +117,7 @@ def weighted_integral(
     wavenumber_cm: ArrayLike,
     dos_cm: ArrayLike,
     temperature_K: float,
-    weights: str = "quantum",
+    weighting: str = "quantum",
 ) -> dict[str, float]:
     """Integrals of a DoS against the harmonic weighting functions.
 
@@ -133,7 +129,7 @@ def weighted_integral(
         DoS per unit wavenumber (cm); leading axes are kept.
     temperature_K : float
         Temperature in K that enters u = hcν̃/kT.
-    weights : {"quantum", "classical"}
+    weighting : {"quantum", "classical"}
         Quantum harmonic oscillator or classical harmonic oscillator weights.
 
     Returns
@@ -151,8 +147,8 @@ def weighted_integral(
     24-point Gauss–Legendre quadrature of the linearly interpolated DoS (nodes
     avoid the end points), every other interval with the trapezoid rule.
     """
-    if weights not in SOLID_WEIGHTS:
-        raise ConfigError(f"weights={weights!r} is not one of {SOLID_WEIGHTS}")
+    if weighting not in SOLID_WEIGHTS:
+        raise ConfigError(f"weighting={weighting!r} is not one of {SOLID_WEIGHTS}")
     x = np.asarray(wavenumber_cm, dtype=float)
     s = np.asarray(dos_cm, dtype=float)
     if x.ndim != 1 or x.size < 3 or s.shape[-1] != x.size:
@@ -163,22 +159,19 @@ def weighted_integral(
         raise ConfigError("wavenumber grid must start at 0 cm-1")
     c2 = C.second_radiation_constant_cm_K
     u = c2 * x[1:] / temperature_K
-    w = _weights(u, weights)
+    w = _weights(u, weighting)
     dx = np.diff(x)
     # first interval: Gauss-Legendre on the linear interpolant of S
     xg = 0.5 * x[1] * (_GAUSS_X + 1.0)
     sg = s[..., :1] + (s[..., 1:2] - s[..., :1]) * (xg / x[1])
-    wg = _weights(c2 * xg / temperature_K, weights)
+    wg = _weights(c2 * xg / temperature_K, weighting)
     out: dict[str, float] = {}
-    for name in ("entropy", "energy", "heat_capacity"):
+    for name in ("entropy", "energy", "heat_capacity", "energy_minus_classical"):
         first = 0.5 * x[1] * np.sum(sg * wg[name] * _GAUSS_W, axis=-1)
         f = s[..., 1:] * w[name]
         rest = np.sum(0.5 * (f[..., 1:] + f[..., :-1]) * dx[1:], axis=-1)
         out[name] = first + rest
     out["dof"] = np.trapezoid(s, x, axis=-1)
-    out["energy_minus_classical"] = out["energy"] - out["dof"] if weights == "quantum" else (
-        0.0 * out["dof"]
-    )
     return out
 
 
