@@ -1,0 +1,335 @@
+"""The property table: tidy rows, CSV + JSON sidecar, a readable printout, merging.
+
+One row per system x group x method x property x temperature x basis, with
+the classical value, the quantum value, their difference (the quantum
+correction), a standard error for each, the unit, and a note saying why a cell
+is empty or how a value is to be read.  The layout is described in
+``DEVELOPERS.md`` ("The property table").
+
+The CSV is plain text (``,``-separated, ``.`` decimal, empty cell = not
+defined); floats are written with full double precision.  The JSON sidecar
+``<table>.json`` holds the provenance: what was read (file name, size,
+SHA-256), the qcorr and library versions, the options, and the cautions that
+apply to every number in the table.  Both files are written atomically: either
+both appear complete, or neither is touched.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+from collections.abc import Iterable, Sequence
+from dataclasses import asdict, dataclass, fields
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from qcorr import __version__
+from qcorr.errors import ConfigError, QcorrError
+from qcorr.safe_write import atomic_path
+
+#: value of ``qcorr_file_kind`` in a table's JSON sidecar
+FILE_KIND = "property_table"
+
+#: the columns, in order, with their meaning (also written to the sidecar)
+COLUMNS: dict[str, str] = {
+    "system": "system identifier (--system; defaults to the spectrum file's stem)",
+    "group": "atom group of the spectrum file",
+    "method": "harmonic (Berens weighting functions), frozen_bond_addon (user-given "
+    "wavenumbers of constrained bonds), or 2pt (two-phase model)",
+    "property": "heat_capacity, energy (zero-point energy included), thermal_energy "
+    "(excluded), zero_point_energy, entropy, helmholtz_free_energy, "
+    "mean_square_displacement, mean_square_displacement_ratio",
+    "temperature_K": "temperature at which the property is evaluated, K",
+    "basis": "per_mole_molecules, per_mole_atoms, per_system, or atom_mean (mass-weighted "
+    "mean over the group's atoms)",
+    "unit": "J/(mol K) or kJ/mol per mole; J/K or kJ per system; angstrom^2; 1",
+    "classical": "classical value (see classical_source)",
+    "quantum": "quantum value = classical + correction",
+    "correction": "quantum correction (quantum - classical)",
+    "classical_se": "standard error of classical (from the per-segment spectra)",
+    "quantum_se": "standard error of quantum",
+    "correction_se": "standard error of correction",
+    "classical_source": "harmonic_model (classical harmonic oscillators on the spectrum), "
+    "md_value (classical value supplied by the user from the MD run), "
+    "constrained_in_md (a constrained bond: no classical contribution), or empty",
+    "note": "why a cell is empty, or how to read the row",
+}
+TABLE_COLUMNS: tuple[str, ...] = tuple(COLUMNS)
+
+#: the value bases of a table
+BASES = ("per_mole_molecules", "per_mole_atoms", "per_system")
+
+#: cautions that hold for every harmonic number qcorr reports
+HARMONIC_CAUTIONS: tuple[str, ...] = (
+    "Harmonic approximation: every spectral component is treated as an independent harmonic "
+    "mode (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, 2375 (1983)); the corrections "
+    "are first-order fixes to classical MD values, not a quantum simulation.",
+    "Anharmonic modes: classical MD frequencies are anharmonic and red-shifted; strongly "
+    "anharmonic, diffusive, hindered-rotor or tunnelling motion is not described correctly.",
+    "Thermostat artefacts: local stochastic thermostats (Langevin, Andersen) broaden bands "
+    "and change the low-frequency spectrum; prefer NVE or weakly coupled global thermostats "
+    "for the production run that feeds the spectrum.",
+    "Constrained bonds: modes removed by constraints are absent from the spectrum; their "
+    "zero-point energy and quantum contributions appear only through the frozen-bond add-on "
+    "rows, from user-given wavenumbers.",
+    "These results support, not replace, validated practice: compare with experiment or "
+    "path-integral simulations where available.",
+)
+
+
+@dataclass
+class TableRow:
+    """One row of the property table (see :data:`COLUMNS`); None = empty cell."""
+
+    system: str
+    group: str
+    method: str
+    property: str
+    temperature_K: float
+    basis: str
+    unit: str
+    classical: float | None = None
+    quantum: float | None = None
+    correction: float | None = None
+    classical_se: float | None = None
+    quantum_se: float | None = None
+    correction_se: float | None = None
+    classical_source: str = ""
+    note: str = ""
+
+
+def rows_to_frame(rows: Iterable[TableRow]) -> pd.DataFrame:
+    """Tidy DataFrame with exactly :data:`TABLE_COLUMNS` (None becomes NaN)."""
+    records = [asdict(r) for r in rows]
+    frame = pd.DataFrame.from_records(records, columns=[f.name for f in fields(TableRow)])
+    for col in ("classical", "quantum", "correction", "classical_se", "quantum_se", "correction_se"):
+        frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
+    frame["temperature_K"] = frame["temperature_K"].astype(float)
+    return frame[list(TABLE_COLUMNS)]
+
+
+def sidecar_path(table_path: str | os.PathLike[str]) -> Path:
+    """The JSON sidecar of a table: ``TABLE.csv`` -> ``TABLE.json``."""
+    return Path(table_path).with_suffix(".json")
+
+
+def file_record(path: str | os.PathLike[str]) -> dict[str, object]:
+    """``{"name", "size_bytes", "sha256"}`` of an input file (read in 1 MiB blocks)."""
+    path = Path(path)
+    digest = hashlib.sha256()
+    with path.open("rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return {"name": os.fspath(path), "size_bytes": path.stat().st_size, "sha256": digest.hexdigest()}
+
+
+def library_versions() -> dict[str, str]:
+    """Versions of qcorr and the numerical libraries that made a table."""
+    import scipy
+    import xarray
+
+    return {
+        "qcorr": __version__,
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "pandas": pd.__version__,
+        "xarray": xarray.__version__,
+    }
+
+
+def check_output_path(
+    output: str | os.PathLike[str], inputs: Sequence[str | os.PathLike[str]], option: str = "--output"
+) -> Path:
+    """Refuse an output (or its sidecar) that would overwrite an input file.
+
+    Raises
+    ------
+    ConfigError
+        Naming the option and the input file, if the table or its JSON sidecar is an input.
+    """
+    output = Path(output)
+    if output.suffix.lower() == ".json":
+        raise ConfigError(
+            f"{option} '{output}': the table must not end in .json (that name is used for its "
+            "sidecar); use a .csv name"
+        )
+    targets = {output.resolve(), sidecar_path(output).resolve()}
+    for item in inputs:
+        if Path(item).resolve() in targets:
+            raise ConfigError(
+                f"{option} '{output}' would overwrite the input '{item}' (or write its sidecar "
+                "over it); choose another output name"
+            )
+    return output
+
+
+def _json_default(value: object) -> object:
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, Path):
+        return os.fspath(value)
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
+
+
+def write_table(frame: pd.DataFrame, path: str | os.PathLike[str], provenance: dict) -> Path:
+    """Write the table CSV and its JSON sidecar atomically (both or neither).
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        Table with exactly :data:`TABLE_COLUMNS`.
+    path : str or path-like
+        Target CSV; the sidecar goes to :func:`sidecar_path`.
+    provenance : dict
+        JSON-serialisable provenance; ``qcorr_file_kind``, ``columns`` and
+        ``versions`` are added.
+
+    Returns
+    -------
+    pathlib.Path
+        The CSV path.
+    """
+    if tuple(frame.columns) != TABLE_COLUMNS:
+        raise QcorrError(f"internal: table columns {tuple(frame.columns)} != {TABLE_COLUMNS}")
+    sidecar = {
+        "qcorr_file_kind": FILE_KIND,
+        "table": Path(path).name,
+        "columns": COLUMNS,
+        "versions": library_versions(),
+        **provenance,
+    }
+    text = json.dumps(sidecar, indent=2, sort_keys=False, default=_json_default, allow_nan=False)
+    path = Path(path)
+    with atomic_path(path) as tmp_csv, atomic_path(sidecar_path(path)) as tmp_json:
+        frame.to_csv(tmp_csv, index=False, na_rep="", lineterminator="\n")
+        tmp_json.write_text(text + "\n", encoding="utf-8")
+    return path
+
+
+def read_table(path: str | os.PathLike[str]) -> tuple[pd.DataFrame, dict]:
+    """Read a table written by qcorr and its sidecar.
+
+    Raises
+    ------
+    ConfigError
+        Naming the file, if it is missing, is not CSV with exactly the table
+        columns, or lacks its JSON sidecar.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise ConfigError(f"table '{path}' does not exist; check the path")
+    try:
+        frame = pd.read_csv(path, keep_default_na=False, na_values=[""], dtype={"note": str})
+    except Exception as err:  # pandas raises ParserError, UnicodeDecodeError, EmptyDataError
+        raise ConfigError(
+            f"table '{path}' is not a readable CSV ({type(err).__name__}); give a table "
+            "written by 'qcorr properties' or 'qcorr liquid'"
+        ) from err
+    if tuple(frame.columns) != TABLE_COLUMNS:
+        missing = [c for c in TABLE_COLUMNS if c not in frame.columns]
+        extra = [c for c in frame.columns if c not in TABLE_COLUMNS]
+        raise ConfigError(
+            f"table '{path}' has columns that do not match a qcorr property table "
+            f"(missing: {missing or 'none'}, unexpected: {extra or 'none'}, or out of order); "
+            "give tables written by 'qcorr properties' or 'qcorr liquid' of this qcorr version"
+        )
+    side = sidecar_path(path)
+    if not side.is_file():
+        raise ConfigError(
+            f"table '{path}' has no JSON sidecar '{side}' (its provenance); keep the two files "
+            "together"
+        )
+    try:
+        provenance = json.loads(side.read_text(encoding="utf-8"))
+    except (json.JSONDecodeError, UnicodeDecodeError) as err:
+        raise ConfigError(f"sidecar '{side}' of table '{path}' is not valid JSON") from err
+    if not isinstance(provenance, dict) or provenance.get("qcorr_file_kind") != FILE_KIND:
+        raise ConfigError(
+            f"sidecar '{side}' of table '{path}' was not written by qcorr "
+            f"(qcorr_file_kind is not {FILE_KIND!r})"
+        )
+    for col in ("system", "group", "method", "property", "basis", "unit", "classical_source", "note"):
+        frame[col] = frame[col].fillna("").astype(str)
+    return frame, provenance
+
+
+#: the columns that identify a row; no two rows of a merged table may share them
+KEY_COLUMNS = ("system", "group", "method", "property", "temperature_K", "basis")
+
+
+def merge_tables(paths: Sequence[str | os.PathLike[str]]) -> tuple[pd.DataFrame, dict]:
+    """Concatenate several tables (e.g. one per system) into one.
+
+    Raises
+    ------
+    ConfigError
+        Naming the file, if a table is unreadable or has other columns, or if two
+        tables hold the same row key (system, group, method, property, temperature,
+        basis), e.g. because two runs were given the same ``--system``.
+    """
+    if not paths:
+        raise ConfigError("qcorr merge: give at least one table")
+    frames = []
+    sources = []
+    seen: dict[tuple, str] = {}
+    for path in paths:
+        frame, provenance = read_table(path)
+        for key in frame[list(KEY_COLUMNS)].itertuples(index=False, name=None):
+            if key in seen:
+                raise ConfigError(
+                    f"table '{path}' repeats the row (system={key[0]!r}, group={key[1]!r}, "
+                    f"method={key[2]!r}, property={key[3]!r}, temperature_K={key[4]}, "
+                    f"basis={key[5]!r}) already in '{seen[key]}'; give each run its own --system"
+                )
+            seen[key] = os.fspath(path)
+        frames.append(frame)
+        sources.append({"table": file_record(path), "provenance": provenance})
+    merged = pd.concat(frames, ignore_index=True)[list(TABLE_COLUMNS)]
+    cautions: list[str] = []
+    for src in sources:
+        for c in src["provenance"].get("cautions", []):
+            if c not in cautions:
+                cautions.append(c)
+    return merged, {"merged_from": sources, "cautions": cautions}
+
+
+def _value_with_error(value: float, error: float) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    text = f"{value:.6g}"
+    if error is not None and not (isinstance(error, float) and math.isnan(error)):
+        text += f" ± {error:.2g}"
+    return text
+
+
+def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
+    """Readable text table of one basis (values with their standard errors).
+
+    Rows of the chosen basis, plus rows whose basis is not one of
+    :data:`BASES` (e.g. the mean-square displacement, ``atom_mean``).
+    """
+    keep = frame[(frame["basis"] == basis) | ~frame["basis"].isin(BASES)]
+    shown = pd.DataFrame(
+        {
+            "system": keep["system"],
+            "group": keep["group"],
+            "method": keep["method"],
+            "T/K": keep["temperature_K"].map(lambda t: f"{t:g}"),
+            "property": keep["property"],
+            "unit": keep["unit"],
+            "classical": [_value_with_error(v, e) for v, e in zip(keep["classical"], keep["classical_se"])],
+            "quantum": [_value_with_error(v, e) for v, e in zip(keep["quantum"], keep["quantum_se"])],
+            "correction": [
+                _value_with_error(v, e) for v, e in zip(keep["correction"], keep["correction_se"])
+            ],
+        }
+    )
+    if shown.empty:
+        return "(no rows)"
+    return shown.to_string(index=False)
