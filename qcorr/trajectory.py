@@ -1,0 +1,787 @@
+"""Opening trajectories, the time axis, masses, atom groups and streamed velocities.
+
+Everything that touches MDAnalysis lives here.  The rest of qcorr sees plain
+arrays: per-atom masses (u = g/mol), per-frame velocities (Å/ps) with the
+centre-of-mass velocity removed, and a uniform sampling interval (ps).
+
+Rules this module applies (each one documented where it is implemented):
+
+* **Time step** comes from the frames' time stamps, never from
+  ``trajectory.dt`` (which several MDAnalysis readers fill with a fallback);
+  unevenly spaced or missing frames raise :class:`~qcorr.errors.SamplingError`
+  naming the first bad frame.
+* **Masses** come from the topology (or MDAnalysis' guess), overridden per
+  atom type by the user.  Atoms of zero mass are *virtual sites* and are
+  excluded (with a note) when their name or type looks like one
+  (:data:`VIRTUAL_SITE_PATTERN`) or when the user asks for it; any other zero,
+  negative or undefined mass is an error.
+* **LAMMPS dumps** are read without unit conversion by MDAnalysis: the user
+  states the LAMMPS unit style (``real``: Å, fs, Å/fs; ``metal``: Å, ps, Å/ps;
+  LAMMPS manual, "units" command) and the MD time step in that style's time unit
+  (reader option ``dt``); qcorr converts times to ps and velocities to Å/ps.
+* **Velocities** are the stored ones, or forward differences of positions made
+  continuous across periodic boundaries (minimum image of each step's
+  displacement), on request only.
+
+References
+----------
+.. [1] R. J. Gowers et al., "MDAnalysis: A Python package for the rapid analysis of
+   molecular dynamics simulations", Proc. 15th Python in Science Conf., 98 (2016),
+   doi:10.25080/Majora-629e541a-00e.
+.. [2] LAMMPS documentation, "units command", https://docs.lammps.org/units.html.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import re
+import warnings
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+from numpy.typing import NDArray
+
+from qcorr.constants import femtosecond_s, picosecond_s
+from qcorr.errors import ConfigError, QcorrWarning, SamplingError, TrajectoryError
+
+#: atom names/types (case-insensitive, whole name) that mark a massless virtual site:
+#: TIP4P-style "M"/"MW"/"EPW", extra points "EP1", lone pairs "LP1", generic "VS"/"VSITE", dummies "DUM".
+VIRTUAL_SITE_PATTERN = re.compile(r"^(M|MW\d*|EPW\d*|EP\d*|LP\d*|VS\d*|VSITE\d*|DUM\w*)$", re.I)
+
+#: file suffixes read as LAMMPS dumps when no format is given
+LAMMPS_DUMP_SUFFIXES = (".lammpstrj", ".lammpsdump", ".dump")
+
+#: LAMMPS unit styles qcorr converts: (time unit in s, velocity factor to Å/ps)
+LAMMPS_UNIT_STYLES: dict[str, float] = {
+    "real": femtosecond_s,  # time fs, length Å, velocity Å/fs
+    "metal": picosecond_s,  # time ps, length Å, velocity Å/ps
+}
+
+#: relative tolerance on each frame interval (fraction of the time step), plus float32 rounding
+INTERVAL_TOLERANCE = 1e-2
+
+
+# --------------------------------------------------------------------------- options
+def parse_option_value(text: str) -> int | float | bool | str:
+    """Interpret a ``KEY=VALUE`` option value: int, then float, then true/false, else text."""
+    for kind in (int, float):
+        try:
+            return kind(text)
+        except ValueError:
+            pass
+    if text.lower() in ("true", "yes"):
+        return True
+    if text.lower() in ("false", "no"):
+        return False
+    return text
+
+
+def parse_key_values(items: Sequence[str] | None, option: str) -> dict[str, str]:
+    """Split repeated ``KEY=VALUE`` options into a dict (keys unique).
+
+    Raises
+    ------
+    ConfigError
+        If an item has no ``=``, an empty key, or a key repeats.
+    """
+    result: dict[str, str] = {}
+    for item in items or ():
+        key, sep, value = item.partition("=")
+        key = key.strip()
+        if not sep or not key:
+            raise ConfigError(f"{option} expects KEY=VALUE, got {item!r}")
+        if key in result:
+            raise ConfigError(f"{option} gives {key!r} twice; give each name once")
+        result[key] = value.strip()
+    return result
+
+
+# --------------------------------------------------------------------------- universe
+@dataclass
+class OpenedTrajectory:
+    """An MDAnalysis Universe plus what qcorr needs to know about how it was read.
+
+    Attributes
+    ----------
+    universe : MDAnalysis.Universe
+    files : list of pathlib.Path
+        Topology first, then the trajectory files, as given.
+    lammps_time_factor : float
+        Multiplies ``ts.time`` to give ps (1 except for LAMMPS dumps in ``real`` units).
+    lammps_velocity_factor : float
+        Multiplies velocities to give Å/ps (1 except for LAMMPS dumps in ``real`` units).
+    """
+
+    universe: object
+    files: list[Path]
+    lammps_time_factor: float = 1.0
+    lammps_velocity_factor: float = 1.0
+    is_lammps_dump: bool = False
+
+
+def _format_for(path: Path, given: str | None) -> str | None:
+    if given:
+        return given
+    if path.suffix.lower() in LAMMPS_DUMP_SUFFIXES:
+        return "LAMMPSDUMP"
+    return None
+
+
+def _first_line(err: BaseException) -> str:
+    text = str(err).strip().splitlines()
+    return f"{type(err).__name__}: {text[0]}" if text else type(err).__name__
+
+
+def open_trajectory(
+    topology: str | os.PathLike[str],
+    trajectories: Sequence[str | os.PathLike[str]],
+    *,
+    topology_format: str | None = None,
+    trajectory_format: str | None = None,
+    reader_options: Mapping[str, object] | None = None,
+    lammps_units: str | None = None,
+) -> OpenedTrajectory:
+    """Open topology + trajectory files as an MDAnalysis Universe (streaming, nothing loaded).
+
+    Parameters
+    ----------
+    topology : path
+        Any topology MDAnalysis parses (TPR, PSF, PRMTOP, GRO, PDB, LAMMPS data, ...).
+    trajectories : sequence of path
+        One or more trajectory files, read in order as one trajectory.
+    topology_format, trajectory_format : str, optional
+        MDAnalysis format names (e.g. ``"TPR"``, ``"LAMMPSDUMP"``); guessed from the
+        suffix otherwise (``.lammpstrj``/``.lammpsdump``/``.dump`` read as ``LAMMPSDUMP``).
+    reader_options : mapping, optional
+        Passed unchanged to :class:`MDAnalysis.Universe` (e.g. ``atom_style``, ``dt``).
+    lammps_units : {"real", "metal"}, optional
+        LAMMPS unit style of a dump trajectory; required for dumps.
+
+    Returns
+    -------
+    OpenedTrajectory
+
+    Raises
+    ------
+    TrajectoryError
+        If a file is missing or unreadable (names the file and the reader's complaint),
+        or a LAMMPS dump lacks its unit style or MD time step.
+    ConfigError
+        If *lammps_units* is not one of :data:`LAMMPS_UNIT_STYLES`.
+    """
+    import MDAnalysis as mda
+
+    top = Path(topology)
+    trajs = [Path(t) for t in trajectories]
+    for path in [top, *trajs]:
+        if not path.is_file():
+            raise TrajectoryError(f"input file '{path}' does not exist; check the path")
+    if lammps_units is not None and lammps_units not in LAMMPS_UNIT_STYLES:
+        raise ConfigError(
+            f"--lammps-units {lammps_units!r} is not supported; choose one of "
+            f"{', '.join(LAMMPS_UNIT_STYLES)}"
+        )
+    options = dict(reader_options or {})
+    top_format = _format_for(top, topology_format)
+    traj_formats = {_format_for(t, trajectory_format) for t in trajs}
+    is_dump = "LAMMPSDUMP" in {str(f).upper() for f in traj_formats if f}
+    if is_dump:
+        if lammps_units is None:
+            raise TrajectoryError(
+                f"'{trajs[0]}' is a LAMMPS dump, whose velocities and times MDAnalysis does not "
+                "convert; pass --lammps-units real or --lammps-units metal"
+            )
+        if "dt" not in options:
+            raise TrajectoryError(
+                f"LAMMPS dump '{trajs[0]}' stores step numbers, not times; pass the MD time step "
+                f"as --reader-option dt=VALUE (in {'fs' if lammps_units == 'real' else 'ps'} "
+                f"for units {lammps_units})"
+            )
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # guesser chatter; masses are validated below
+            kwargs = dict(options)
+            if top_format:
+                kwargs["topology_format"] = top_format
+            fmt = next(iter(traj_formats)) if len(traj_formats) == 1 else None
+            if fmt:
+                kwargs["format"] = fmt
+            universe = mda.Universe(str(top), *[str(t) for t in trajs], **kwargs)
+    except Exception as err:  # MDAnalysis raises many types for unreadable input
+        raise TrajectoryError(
+            f"cannot read '{top}' with {', '.join(map(str, trajs))} ({_first_line(err)}); check "
+            "that the files are complete and that --topology-format/--trajectory-format are right"
+        ) from err
+    opened = OpenedTrajectory(universe=universe, files=[top, *trajs], is_lammps_dump=is_dump)
+    if is_dump:
+        unit_s = LAMMPS_UNIT_STYLES[lammps_units]
+        opened.lammps_time_factor = unit_s / picosecond_s  # step x dt[unit] -> ps
+        opened.lammps_velocity_factor = picosecond_s / unit_s  # Å/unit -> Å/ps
+    return opened
+
+
+def describe_files(paths: Sequence[str | os.PathLike[str]]) -> list[dict[str, object]]:
+    """Name, size (bytes) and SHA-256 of each input file, for provenance.
+
+    The hash is read in 1 MiB chunks, so large trajectories are not held in memory.
+    """
+    records = []
+    for path in paths:
+        path = Path(path)
+        digest = hashlib.sha256()
+        with path.open("rb") as fh:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                digest.update(chunk)
+        records.append(
+            {"name": path.name, "size_bytes": path.stat().st_size, "sha256": digest.hexdigest()}
+        )
+    return records
+
+
+# --------------------------------------------------------------------------- masses
+def apply_masses_by_type(universe, masses_by_type: Mapping[str, float]) -> None:
+    """Set the mass (u) of every atom of each given type (in the in-memory topology only).
+
+    Raises
+    ------
+    ConfigError
+        If a type does not occur in the topology, or a mass is not positive and finite.
+    """
+    if not masses_by_type:
+        return
+    if not hasattr(universe.atoms, "masses"):
+        universe.add_TopologyAttr("masses", np.zeros(universe.atoms.n_atoms))
+    types = np.asarray(universe.atoms.types).astype(str)
+    masses = np.array(universe.atoms.masses, dtype=float)
+    for atom_type, value in masses_by_type.items():
+        try:
+            mass = float(value)
+        except (TypeError, ValueError) as err:
+            raise ConfigError(f"--mass {atom_type}={value}: the mass must be a number in u") from err
+        if not np.isfinite(mass) or mass <= 0:
+            raise ConfigError(f"--mass {atom_type}={value}: the mass must be positive (u = g/mol)")
+        hit = types == atom_type
+        if not hit.any():
+            known = ", ".join(sorted(set(types))[:20])
+            raise ConfigError(
+                f"--mass {atom_type}=...: no atom has type {atom_type!r}; types in the topology: {known}"
+            )
+        masses[hit] = mass
+    universe.atoms.masses = masses
+
+
+@dataclass
+class MassCheck:
+    """Result of :func:`massive_atoms`: the atoms kept and a note on those dropped."""
+
+    indices: NDArray[np.int64]
+    masses: NDArray[np.float64]
+    note: str = ""
+
+
+def massive_atoms(universe, *, exclude_massless: bool = False, topology_name: str = "topology") -> MassCheck:
+    """Atoms that carry mass (the channels of the spectrum), with virtual sites excluded.
+
+    Rule: an atom of mass exactly 0 is a virtual site and is dropped when its name or
+    type matches :data:`VIRTUAL_SITE_PATTERN`, or when *exclude_massless* is true.  Any
+    other zero mass, and every negative or undefined (NaN) mass, is an error, because a
+    guessed mass of 0 usually means MDAnalysis did not recognise the element.
+
+    Parameters
+    ----------
+    universe : MDAnalysis.Universe
+    exclude_massless : bool
+        Drop every atom of zero mass whatever its name.
+    topology_name : str
+        Used in messages.
+
+    Returns
+    -------
+    MassCheck
+        Indices (into ``universe.atoms``) and masses (u) of the kept atoms, and a note
+        (empty if nothing was dropped).
+
+    Raises
+    ------
+    TrajectoryError
+        Zero/negative/NaN masses that are not virtual sites (names the atoms and types
+        and suggests ``--mass TYPE=AMU``), or no atom with mass at all.
+    """
+    atoms = universe.atoms
+    if not hasattr(atoms, "masses"):
+        raise TrajectoryError(
+            f"{topology_name} has no masses and MDAnalysis could not guess them; "
+            "give them with --mass TYPE=AMU"
+        )
+    masses = np.asarray(atoms.masses, dtype=float)
+    names = np.asarray(atoms.names).astype(str) if hasattr(atoms, "names") else np.full(len(masses), "")
+    types = np.asarray(atoms.types).astype(str) if hasattr(atoms, "types") else np.full(len(masses), "")
+    zero = masses == 0.0
+    looks_virtual = np.array(
+        [bool(VIRTUAL_SITE_PATTERN.match(n) or VIRTUAL_SITE_PATTERN.match(t)) for n, t in zip(names, types)],
+        dtype=bool,
+    )
+    dropped = zero & (looks_virtual | exclude_massless)
+    bad = (~np.isfinite(masses) | (masses < 0) | zero) & ~dropped
+    if bad.any():
+        idx = np.flatnonzero(bad)
+        bad_types = sorted(set(types[idx]))
+        first = idx[0]
+        raise TrajectoryError(
+            f"{len(idx)} atoms in {topology_name} have zero, negative or undefined mass (first: atom "
+            f"index {first} name {names[first]!r} type {types[first]!r}; types {', '.join(bad_types[:10])}); "
+            "give masses with --mass TYPE=AMU, or pass --exclude-massless if they are virtual sites"
+        )
+    keep = np.flatnonzero(~dropped)
+    if len(keep) == 0:
+        raise TrajectoryError(f"no atom in {topology_name} has a mass; give masses with --mass TYPE=AMU")
+    note = ""
+    if dropped.any():
+        dropped_names = sorted(set(names[dropped]))
+        note = (
+            f"excluded {int(dropped.sum())} massless virtual-site atoms (names "
+            f"{', '.join(dropped_names[:10])}) from every group"
+        )
+    return MassCheck(indices=keep.astype(np.int64), masses=masses[keep], note=note)
+
+
+# --------------------------------------------------------------------------- groups
+@dataclass
+class GroupInfo:
+    """One named atom group, expressed on the channels (the massive atoms of the total).
+
+    Attributes
+    ----------
+    name, selection : str
+    members : bool ndarray (n_channels,)
+    atom_count, molecule_count : int
+        Atoms and residues (molecules) in the group.
+    mass : float
+        Total mass of the group's atoms, u (g/mol).
+    """
+
+    name: str
+    selection: str
+    members: NDArray[np.bool_]
+    atom_count: int
+    molecule_count: int
+    mass: float
+    constraints: float = 0.0
+    degrees_of_freedom: float = field(default=0.0)
+
+
+def select_groups(
+    universe, channels: MassCheck, selections: Mapping[str, str]
+) -> list[GroupInfo]:
+    """Build the group list: ``total`` (all channels) first, then each user group in order.
+
+    Atoms a selection picks that are not channels (virtual sites) are left out.
+
+    Raises
+    ------
+    ConfigError
+        Reserved or malformed group name, invalid selection, or a group with no
+        massive atom (names the group and the selection).
+    """
+    n_atoms = universe.atoms.n_atoms
+    position = np.full(n_atoms, -1, dtype=np.int64)
+    position[channels.indices] = np.arange(len(channels.indices))
+    total_atoms = universe.atoms[channels.indices]
+    groups = [
+        GroupInfo(
+            name="total",
+            selection="all atoms with mass",
+            members=np.ones(len(channels.indices), dtype=bool),
+            atom_count=len(channels.indices),
+            molecule_count=int(total_atoms.n_residues),
+            mass=float(channels.masses.sum()),
+        )
+    ]
+    for name, selection in selections.items():
+        if name == "total":
+            raise ConfigError("--group total=...: the name 'total' is reserved for all atoms; pick another name")
+        if not re.fullmatch(r"[A-Za-z0-9_.+-]+", name):
+            raise ConfigError(
+                f"--group {name}=...: group names may hold letters, digits and _ . + - only"
+            )
+        try:
+            atoms = universe.select_atoms(selection)
+        except Exception as err:
+            raise ConfigError(
+                f"--group {name}={selection!r}: MDAnalysis cannot parse the selection ({_first_line(err)})"
+            ) from err
+        pos = position[atoms.indices]
+        pos = pos[pos >= 0]
+        if len(pos) == 0:
+            raise ConfigError(
+                f"--group {name}={selection!r} selects no atom with mass; check the selection "
+                "against the topology's names/types/residues"
+            )
+        members = np.zeros(len(channels.indices), dtype=bool)
+        members[pos] = True
+        picked = universe.atoms[channels.indices[members]]
+        groups.append(
+            GroupInfo(
+                name=name,
+                selection=selection,
+                members=members,
+                atom_count=int(members.sum()),
+                molecule_count=int(picked.n_residues),
+                mass=float(channels.masses[members].sum()),
+            )
+        )
+    return groups
+
+
+def assign_degrees_of_freedom(
+    groups: list[GroupInfo],
+    constraints: Mapping[str, str | float] | None = None,
+    constraints_per_molecule: Mapping[str, str | float] | None = None,
+    *,
+    remove_com: bool = True,
+) -> None:
+    """Set ``constraints`` and ``degrees_of_freedom`` of every group in place.
+
+    The total has ``3N - c - 3`` degrees of freedom (the centre-of-mass velocity of
+    the total is removed every frame).  A group g of N_g atoms, mass M_g, out of the
+    total mass M, has ``3 N_g - c_g - 3 M_g / M``.
+
+    Derivation of the centre-of-mass share [derived for qcorr; re-check]: with
+    independent Maxwell velocities (each Cartesian component of atom i has
+    variance kT/m_i), the centre-of-mass velocity V = Σ m_i v_i / M has variance
+    kT/M per component and Cov(v_i, V) = kT/M.  Hence for the group,
+    E[Σ_{i∈g} m_i (v_i − V)²] = Σ_{i∈g} m_i (3kT/m_i − 2·3kT/M + 3kT/M)
+    = 3kT (N_g − M_g/M), i.e. the group loses 3 M_g/M degrees of freedom; summed
+    over disjoint groups covering the total this gives back the 3 of the total
+    (equipartition, e.g. D. A. McQuarrie, *Statistical Mechanics*, ch. 7).
+
+    Constraint counts: ``constraints[name]`` is a count for the group,
+    ``constraints_per_molecule[name]`` a count per residue of the group.  For the
+    total, when not given, the sum over the user groups is used if the groups are
+    disjoint; overlapping constrained groups need an explicit total.
+
+    Raises
+    ------
+    ConfigError
+        Unknown group name, negative or non-numeric count, a group given both ways,
+        overlapping constrained groups without an explicit total, or a count that
+        leaves no degree of freedom.
+    """
+    constraints = dict(constraints or {})
+    per_molecule = dict(constraints_per_molecule or {})
+    by_name = {g.name: g for g in groups}
+    for option, table in (("--constraints", constraints), ("--constraints-per-molecule", per_molecule)):
+        for name, value in table.items():
+            if name not in by_name:
+                raise ConfigError(
+                    f"{option} {name}=...: no group named {name!r}; groups are {', '.join(by_name)}"
+                )
+            try:
+                count = float(value)
+            except (TypeError, ValueError) as err:
+                raise ConfigError(f"{option} {name}={value}: the count must be a number") from err
+            if not np.isfinite(count) or count < 0:
+                raise ConfigError(f"{option} {name}={value}: the count must be zero or positive")
+            table[name] = count
+    for name in set(constraints) & set(per_molecule):
+        raise ConfigError(
+            f"group {name!r} has both --constraints and --constraints-per-molecule; give one"
+        )
+    for group in groups:
+        if group.name in constraints:
+            group.constraints = constraints[group.name]
+        elif group.name in per_molecule:
+            group.constraints = per_molecule[group.name] * group.molecule_count
+    total = groups[0]
+    if "total" not in constraints and "total" not in per_molecule:
+        users = groups[1:]
+        constrained = [g for g in users if g.constraints > 0]
+        if constrained:
+            stack = np.sum([g.members for g in users], axis=0)
+            if np.any(stack > 1):
+                raise ConfigError(
+                    "the groups overlap and carry constraints, so the total's count is ambiguous; "
+                    "pass --constraints total=N"
+                )
+            total.constraints = float(sum(g.constraints for g in users))
+    com = 3.0 if remove_com else 0.0
+    for group in groups:
+        share = com * group.mass / total.mass
+        group.degrees_of_freedom = 3.0 * group.atom_count - group.constraints - share
+        if group.degrees_of_freedom <= 0:
+            raise ConfigError(
+                f"group {group.name!r}: {group.constraints:g} constraints leave "
+                f"{group.degrees_of_freedom:g} degrees of freedom for {group.atom_count} atoms; "
+                "check --constraints"
+            )
+
+
+# --------------------------------------------------------------------------- time axis
+@dataclass(frozen=True)
+class FrameWindow:
+    """Frames ``start, start+step, ...`` (< stop) of the trajectory, and their spacing.
+
+    Attributes
+    ----------
+    start, stop, step : int
+        Trajectory frame indices (stop exclusive, already clipped to the trajectory).
+    timestep_ps : float
+        Spacing of consecutive window frames in ps (from the time stamps).
+    first_time_ps : float
+        Time stamp of the first window frame (ps).
+    """
+
+    start: int
+    stop: int
+    step: int
+    timestep_ps: float
+    first_time_ps: float
+
+    @property
+    def n_frames(self) -> int:
+        return len(range(self.start, self.stop, self.step))
+
+    def frame(self, index: int) -> int:
+        """Trajectory frame number of window position *index*."""
+        return self.start + index * self.step
+
+
+def _float32_spacing(time_ps: float) -> float:
+    return float(np.spacing(np.float32(abs(time_ps)))) * 2.0
+
+
+def frame_window(
+    opened: OpenedTrajectory, start: int | None = None, stop: int | None = None, step: int | None = None
+) -> FrameWindow:
+    """Resolve the frame window and its time step from the first two and the last time stamps.
+
+    The time step is (t_last − t_first)/(n − 1) over the whole window (robust against
+    float32 rounding of single stamps); the first interval must agree with it.  Every
+    later interval is checked while streaming (:func:`stream_velocities`).
+
+    Raises
+    ------
+    ConfigError
+        Negative step or an empty window.
+    SamplingError
+        Fewer than two frames, non-increasing time stamps, or a span that disagrees with
+        the first interval (the frames are then scanned to name the first bad one).
+    """
+    trajectory = opened.universe.trajectory
+    n_total = trajectory.n_frames
+    step = 1 if step is None else int(step)
+    if step <= 0:
+        raise ConfigError(f"--step {step}: the frame step must be a positive integer")
+    rng = range(*slice(start, stop, step).indices(n_total))
+    if len(rng) < 2:
+        raise SamplingError(
+            f"the frame window (--start {start} --stop {stop} --step {step}) of '{opened.files[1]}' "
+            f"holds {len(rng)} of its {n_total} frames; at least two are needed"
+        )
+    factor = opened.lammps_time_factor
+    t0 = float(trajectory[rng[0]].time) * factor
+    t1 = float(trajectory[rng[1]].time) * factor
+    t_last = float(trajectory[rng[-1]].time) * factor
+    n = len(rng)
+    dt = (t_last - t0) / (n - 1)
+    window = FrameWindow(rng.start, rng.stop, rng.step, dt, t0)
+    tol = INTERVAL_TOLERANCE * abs(dt) + _float32_spacing(t_last)
+    if not dt > 0 or abs((t1 - t0) - dt) > tol:
+        # find the first bad frame for a precise message (error path only)
+        check_intervals(opened, window, reference_ps=t1 - t0)
+        raise SamplingError(
+            f"the time stamps of '{opened.files[1]}' are not evenly spaced: frames "
+            f"{rng[0]}..{rng[-1]} span {t_last - t0:g} ps, but the first interval is {t1 - t0:g} ps"
+        )
+    return window
+
+
+def check_intervals(opened: OpenedTrajectory, window: FrameWindow, reference_ps: float) -> None:
+    """Scan the window's time stamps; raise at the first interval unlike *reference_ps*."""
+    factor = opened.lammps_time_factor
+    previous = None
+    for i, ts in enumerate(opened.universe.trajectory[window.start : window.stop : window.step]):
+        t = float(ts.time) * factor
+        if previous is not None:
+            _check_one_interval(opened, window, i, t - previous, reference_ps, t)
+        previous = t
+
+
+def _check_one_interval(opened, window, index, interval, reference, time_ps) -> None:
+    tol = INTERVAL_TOLERANCE * abs(reference) + _float32_spacing(time_ps)
+    if not abs(interval - reference) <= tol:
+        raise SamplingError(
+            f"frame {window.frame(index)} of '{opened.files[1]}' (t = {time_ps:g} ps) follows the "
+            f"previous frame by {interval:g} ps instead of the regular {reference:g} ps (missing, "
+            "repeated or unevenly spaced frames); choose a window of evenly spaced frames with "
+            "--start/--stop/--step"
+        )
+
+
+# --------------------------------------------------------------------------- streaming
+@dataclass
+class FrameStatistics:
+    """Running sums the spectrum file stores besides the spectra (over the counted frames).
+
+    Attributes
+    ----------
+    frames : int
+        Frames counted.
+    box_volume_sum_A3 : float
+        Sum of box volumes (Å³); 0 for frames without a box.
+    com_kinetic_sum : float
+        Sum over frames of M |V_com|² before removal (u Å² ps⁻²).
+    """
+
+    frames: int = 0
+    box_volume_sum_A3: float = 0.0
+    com_kinetic_sum: float = 0.0
+
+
+def _atom_label(universe, channel_indices, channel) -> str:
+    atom = universe.atoms[int(channel_indices[channel])]
+    name = getattr(atom, "name", "?")
+    resname = getattr(atom, "resname", "?")
+    resid = getattr(atom, "resid", "?")
+    return f"atom index {atom.index} (name {name}, residue {resname} {resid})"
+
+
+def stream_velocities(
+    opened: OpenedTrajectory,
+    channels: MassCheck,
+    window: FrameWindow,
+    first_sample: int,
+    stop_sample: int,
+    *,
+    source: str = "stored",
+    count_from: int | None = None,
+    count_stop: int | None = None,
+    statistics: FrameStatistics | None = None,
+    progress_mode: str = "never",
+) -> Iterator[NDArray[np.float64]]:
+    """Yield centre-of-mass-free velocities (Å/ps, float64, (n_channels, 3)) one sample at a time.
+
+    Sample j is window frame j for stored velocities; for ``source="positions"`` it is
+    the forward difference (x_{j+1} − x_j)/Δt of window frames j and j+1, each
+    displacement first reduced to its minimum image (so positions need not be
+    unwrapped; valid while no atom moves more than half a box edge between frames).
+
+    Parameters
+    ----------
+    opened : OpenedTrajectory
+    channels : MassCheck
+        Atoms (indices) and masses (u) of the channels.
+    window : FrameWindow
+    first_sample, stop_sample : int
+        Samples ``first_sample .. stop_sample-1`` are produced.
+    source : {"stored", "positions"}
+    count_from, count_stop : int, optional
+        Samples in this range add to *statistics* (box volume, centre-of-mass drift).
+    statistics : FrameStatistics, optional
+        Updated in place.
+    progress_mode : {"auto", "always", "never"}
+
+    Yields
+    ------
+    ndarray, shape (n_channels, 3), Å/ps
+
+    Raises
+    ------
+    TrajectoryError
+        A frame without velocities (stored mode; says how to derive them), or a
+        non-finite velocity/position (names the frame and the atom).
+    SamplingError
+        An interval unlike the window's time step (names the frame and both intervals).
+    """
+    from MDAnalysis.exceptions import NoDataError
+    from MDAnalysis.lib.distances import minimize_vectors
+
+    from qcorr.progress import progress
+
+    if source not in ("stored", "positions"):
+        raise ConfigError(f"--velocities-from {source!r}: choose stored or positions")
+    universe = opened.universe
+    idx = channels.indices
+    masses = channels.masses
+    total_mass = float(masses.sum())
+    extra = 1 if source == "positions" else 0
+    read_stop = window.start + (stop_sample + extra) * window.step
+    frames = universe.trajectory[window.start + first_sample * window.step : read_stop : window.step]
+    count_from = first_sample if count_from is None else count_from
+    count_stop = stop_sample if count_stop is None else count_stop
+    dt = window.timestep_ps
+    factor_t = opened.lammps_time_factor
+    factor_v = opened.lammps_velocity_factor
+    previous_time = None
+    previous_positions = None
+    n_read = stop_sample - first_sample + extra
+    for k, ts in enumerate(progress(frames, total=n_read, desc="frames", mode=progress_mode)):
+        sample = first_sample + k
+        frame_no = window.frame(sample)
+        time_ps = float(ts.time) * factor_t
+        if previous_time is not None:
+            _check_one_interval(opened, window, sample, time_ps - previous_time, dt, time_ps)
+        previous_time = time_ps
+        if source == "stored":
+            try:
+                if not ts.has_velocities:
+                    raise NoDataError
+                raw = ts.velocities
+            except NoDataError:
+                raise TrajectoryError(
+                    f"frame {frame_no} of '{opened.files[1]}' has no velocities; pass "
+                    "--velocities-from positions to derive them from positions by finite differences"
+                ) from None
+            v = np.asarray(raw[idx], dtype=np.float64) * factor_v
+            _check_finite(v, universe, idx, frame_no, opened, "velocity")
+        else:
+            x = np.asarray(ts.positions[idx], dtype=np.float64)
+            _check_finite(x, universe, idx, frame_no, opened, "position")
+            if previous_positions is None:
+                previous_positions = x
+                previous_box = ts.dimensions
+                continue
+            d = x - previous_positions
+            box = ts.dimensions
+            if box is not None and np.all(np.asarray(box[:3]) > 0):
+                # only atoms that crossed a boundary (a component beyond a quarter of the
+                # shortest edge) get the minimum image; minimize_vectors works in float32,
+                # so the others keep their float64 displacement
+                jumped = np.any(np.abs(d) > 0.25 * float(np.min(box[:3])), axis=1)
+                if jumped.any():
+                    d[jumped] = minimize_vectors(d[jumped].astype(np.float32), box)
+            previous_positions = x
+            v = d / dt
+            sample -= 1  # the difference of frames j, j+1 is sample j
+            frame_no = window.frame(sample)
+            box = previous_box
+            previous_box = ts.dimensions
+        com = masses @ v / total_mass
+        v -= com
+        if statistics is not None and count_from <= sample < count_stop:
+            statistics.frames += 1
+            statistics.com_kinetic_sum += total_mass * float(com @ com)
+            dims = box if source == "positions" else ts.dimensions
+            if dims is not None and np.all(np.asarray(dims[:3]) > 0):
+                statistics.box_volume_sum_A3 += _box_volume(dims)
+        yield v
+
+
+def _box_volume(dimensions) -> float:
+    from MDAnalysis.lib.mdamath import box_volume
+
+    return float(box_volume(np.asarray(dimensions, dtype=np.float32)))
+
+
+def _check_finite(values, universe, idx, frame_no, opened, what) -> None:
+    finite = np.isfinite(values)
+    if not finite.all():
+        channel = int(np.flatnonzero(~finite.all(axis=1))[0])
+        raise TrajectoryError(
+            f"frame {frame_no} of '{opened.files[1]}' has a non-finite {what} (NaN or Inf) for "
+            f"{_atom_label(universe, idx, channel)}; the file is corrupt there, choose a window "
+            "before it with --stop"
+        )
