@@ -1,0 +1,426 @@
+"""Molecular decomposition of atomic velocities: translation, rotation, vibration.
+
+For every molecule i (a residue or a connected fragment) with atoms j, made
+whole across periodic boundaries (each atom is moved to the minimum image of
+the molecule's first atom), the velocities are split as (Lin, Maiti, Goddard
+2010 [1]_; classical rigid-body kinematics, Goldstein, Classical Mechanics,
+3rd ed., Ch. 5)::
+
+    v_j = V_i + ω_i × r_j + v_j^vib,    r_j = position relative to the centre of mass
+    V_i = Σ m_j v_j / M_i
+    L_i = Σ m_j r_j × (v_j − V_i),   I_i = Σ m_j (|r_j|² 1 − r_j r_jᵀ),   ω_i = I_i⁻¹ L_i
+
+Channels handed to the spectrum estimator (one vector of 3 components per
+molecule and part):
+
+* translation: ``V_i`` in Å/ps with weight ``M_i`` (u); the DoS integrates to
+  3 per molecule;
+* rotation, nonlinear molecules: ``(√I_k ω_k)_{k=1..3}`` with ω_k the
+  projections on the instantaneous principal axes e_k (weight 1, value in
+  √u Å/ps); the axes are followed in time (the permutation and signs that best
+  match the previous frame are kept), so a label does not jump when two moments
+  cross or an eigenvector flips sign; integrates to 3 per molecule;
+* rotation, linear molecules (smallest principal moment below
+  ``linear_ratio`` × largest in the first frame): ``√I_⊥ ω_⊥`` in the lab frame,
+  where ω_⊥ is the angular velocity perpendicular to the axis and I_⊥ the mean
+  of the two large moments; integrates to 2 per molecule.  The spin about the
+  axis (tiny moment) is left to vibration;
+* monatomic molecules: no rotation.
+
+Vibration is the *difference* DoS, ``S_vib = S_atoms − S_trn − S_rot``, not
+the spectrum of the residual velocities ``v_j^vib``: the two differ by the
+spectra of cross-correlations between the parts [1]_.  Rigid molecules (no
+vibrational degree of freedom left after constraints) get ``S_vib = 0``
+exactly; their difference DoS is only reported as a check.
+
+The self-diffusion coefficient of the molecules is also estimated from the
+mean-square displacement of the unwrapped centres of mass (Einstein relation,
+``MSD = 6 D t`` at long times; Allen & Tildesley, Computer Simulation of
+Liquids, 2nd ed. 2017, §8.7), for comparison with the Green–Kubo value from
+the translational DoS at zero frequency.
+
+References
+----------
+.. [1] S.-T. Lin, P. K. Maiti, W. A. Goddard III, J. Phys. Chem. B 114, 8191
+   (2010). doi:10.1021/jp103120q
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from qcorr import constants as C
+from qcorr.errors import ConfigError, TrajectoryError
+
+MOLECULE_DEFINITIONS = ("residue", "fragment")
+DEFAULT_LINEAR_RATIO = 1e-2
+
+__all__ = [
+    "DEFAULT_LINEAR_RATIO",
+    "MOLECULE_DEFINITIONS",
+    "CentreOfMassDisplacement",
+    "MoleculeLayout",
+    "MolecularDecomposer",
+    "build_layout",
+    "molecule_ids_from_universe",
+]
+
+_PERMUTATIONS = np.array(list(itertools.permutations(range(3))))
+
+
+@dataclass(frozen=True)
+class MoleculeLayout:
+    """Which channels (atoms) form which molecule, fixed before the frame loop.
+
+    Attributes
+    ----------
+    molecule_of_channel : int array (n_channels,)
+        Molecule index 0 .. n_molecules-1 of every channel.
+    order, starts : int arrays
+        Channels sorted by molecule and the offsets where each molecule begins
+        (for :func:`numpy.add.reduceat`).
+    masses : float array (n_channels,)
+        Atomic masses, u.
+    molecule_mass : float array (n_molecules,)
+        M_i, u.
+    atom_count : int array (n_molecules,)
+    first_channel : int array (n_molecules,)
+        Reference atom for making the molecule whole.
+    rotational_dof : int array (n_molecules,)
+        0 (one atom), 2 (linear) or 3.
+    group_molecules : bool array (n_groups, n_molecules)
+        Molecules all of whose atoms belong to the group.
+    group_whole : bool array (n_groups,)
+        True if the group consists of whole molecules only.
+    """
+
+    molecule_of_channel: NDArray[np.int64]
+    order: NDArray[np.int64]
+    starts: NDArray[np.int64]
+    masses: NDArray[np.float64]
+    molecule_mass: NDArray[np.float64]
+    atom_count: NDArray[np.int64]
+    first_channel: NDArray[np.int64]
+    rotational_dof: NDArray[np.int64]
+    group_molecules: NDArray[np.bool_]
+    group_whole: NDArray[np.bool_]
+
+    @property
+    def n_molecules(self) -> int:
+        return int(self.molecule_mass.size)
+
+
+def molecule_ids_from_universe(universe, channel_indices: ArrayLike, definition: str = "residue"):
+    """Molecule index of every channel atom: its residue, or its bonded fragment.
+
+    Raises
+    ------
+    ConfigError
+        Unknown definition, or ``fragment`` with a topology that has no bonds.
+    """
+    idx = np.asarray(channel_indices, dtype=np.int64)
+    atoms = universe.atoms[idx]
+    if definition == "residue":
+        raw = atoms.resindices
+    elif definition == "fragment":
+        try:
+            raw = atoms.fragindices
+        except Exception as err:  # MDAnalysis raises NoDataError without bonds
+            raise ConfigError(
+                "--molecules fragment needs bonds in the topology (none found); use "
+                "--molecules residue or a topology with bonds"
+            ) from err
+    else:
+        raise ConfigError(f"--molecules {definition!r}: choose one of {', '.join(MOLECULE_DEFINITIONS)}")
+    _, ids = np.unique(np.asarray(raw), return_inverse=True)
+    return ids.astype(np.int64)
+
+
+def _minimum_image(d: NDArray[np.float64], box: ArrayLike | None) -> NDArray[np.float64]:
+    """Minimum-image vectors (Å) for an MDAnalysis box [a, b, c, α, β, γ]; no box: unchanged."""
+    if box is None:
+        return d
+    box = np.asarray(box, dtype=np.float64)
+    if box.shape != (6,) or not np.all(box[:3] > 0):
+        return d
+    if np.allclose(box[3:], 90.0):
+        edge = box[:3]
+        return d - edge * np.round(d / edge)
+    from MDAnalysis.lib.distances import minimize_vectors
+
+    return minimize_vectors(d.astype(np.float32), box.astype(np.float32)).astype(np.float64)
+
+
+def _reduce(layout: MoleculeLayout, per_channel: NDArray[np.float64]) -> NDArray[np.float64]:
+    return np.add.reduceat(per_channel[layout.order], layout.starts, axis=0)
+
+
+def _whole(layout: MoleculeLayout, positions: NDArray[np.float64], box) -> NDArray[np.float64]:
+    """Positions relative to each molecule's first atom, molecules made whole (Å)."""
+    ref = positions[layout.first_channel][layout.molecule_of_channel]
+    return _minimum_image(positions - ref, box)
+
+
+def _inertia(layout: MoleculeLayout, rel: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Inertia tensors (n_molecules, 3, 3), u Å², from centre-of-mass-relative positions."""
+    m = layout.masses[:, None, None]
+    outer = rel[:, :, None] * rel[:, None, :]
+    eye = np.einsum("ni,ni->n", rel, rel)[:, None, None] * np.eye(3)
+    return _reduce(layout, m * (eye - outer))
+
+
+def build_layout(
+    masses: ArrayLike,
+    molecule_ids: ArrayLike,
+    group_members: ArrayLike,
+    first_positions: ArrayLike,
+    box: ArrayLike | None = None,
+    linear_ratio: float = DEFAULT_LINEAR_RATIO,
+) -> MoleculeLayout:
+    """Build the molecule layout from masses, molecule ids and the first frame.
+
+    Parameters
+    ----------
+    masses : array (n_channels,)
+        Atomic masses, u (> 0).
+    molecule_ids : int array (n_channels,)
+        Molecule index of each channel (any integers; renumbered 0..n-1).
+    group_members : bool array (n_groups, n_channels)
+    first_positions : array (n_channels, 3)
+        Positions in Å of the first frame (to detect linear molecules).
+    box : array (6,), optional
+        MDAnalysis box [a, b, c, α, β, γ] (Å, degrees).
+    linear_ratio : float
+        A molecule whose smallest principal moment is below this fraction of the
+        largest is treated as linear (2 rotational dof).
+
+    Raises
+    ------
+    ConfigError
+        Inconsistent shapes or non-positive masses.
+    """
+    masses = np.asarray(masses, dtype=np.float64)
+    ids = np.asarray(molecule_ids)
+    members = np.asarray(group_members, dtype=bool)
+    pos = np.asarray(first_positions, dtype=np.float64)
+    n = masses.size
+    if ids.shape != (n,) or pos.shape != (n, 3) or members.ndim != 2 or members.shape[1] != n:
+        raise ConfigError(
+            f"molecular decomposition: masses {masses.shape}, molecule ids {ids.shape}, positions "
+            f"{pos.shape} and groups {members.shape} do not describe the same {n} atoms"
+        )
+    if np.any(~np.isfinite(masses)) or np.any(masses <= 0):
+        raise ConfigError("molecular decomposition needs positive masses for every atom (check --mass)")
+    if not 0 < linear_ratio < 1:
+        raise ConfigError(f"linear-molecule threshold {linear_ratio} must lie in (0, 1)")
+    _, mol = np.unique(ids, return_inverse=True)
+    mol = mol.astype(np.int64)
+    order = np.argsort(mol, kind="stable")
+    sorted_mol = mol[order]
+    starts = np.flatnonzero(np.r_[True, sorted_mol[1:] != sorted_mol[:-1]])
+    first = order[starts]
+    atom_count = np.diff(np.r_[starts, n])
+    n_mol = starts.size
+    molecule_mass = np.add.reduceat(masses[order], starts)
+    # group membership of whole molecules
+    inside = np.stack([np.add.reduceat(g[order].astype(np.int64), starts) for g in members])
+    group_molecules = inside == atom_count[None, :]
+    group_whole = np.all((inside == 0) | group_molecules, axis=1)
+    provisional = MoleculeLayout(
+        mol, order, starts, masses, molecule_mass, atom_count, first,
+        np.zeros(n_mol, dtype=np.int64), group_molecules, group_whole,
+    )
+    rel = _whole(provisional, pos, box)
+    com = _reduce(provisional, masses[:, None] * rel) / molecule_mass[:, None]
+    rel -= com[mol]
+    moments = np.linalg.eigvalsh(_inertia(provisional, rel))
+    rot = np.where(atom_count == 1, 0, np.where(moments[:, 0] < linear_ratio * moments[:, 2], 2, 3))
+    return MoleculeLayout(
+        mol, order, starts, masses, molecule_mass, atom_count, first,
+        rot.astype(np.int64), group_molecules, group_whole,
+    )
+
+
+class MolecularDecomposer:
+    """Turns (positions, velocities, box) frames into translation and rotation channels.
+
+    Holds the principal axes of the previous frame (to follow them in time), the
+    running sum of principal moments, and the unwrapped centres of mass.
+
+    Parameters
+    ----------
+    layout : MoleculeLayout
+    """
+
+    def __init__(self, layout: MoleculeLayout) -> None:
+        self.layout = layout
+        n_mol = layout.n_molecules
+        self._axes: NDArray[np.float64] | None = None
+        self.moment_sum = np.zeros((n_mol, 3))
+        self.frames = 0
+        self._raw_com: NDArray[np.float64] | None = None
+        self.unwrapped_com: NDArray[np.float64] | None = None
+
+    # channel description --------------------------------------------------
+    def channel_weights(self) -> NDArray[np.float64]:
+        """Weights of the 2·n_molecules channels: molecular masses (u), then ones."""
+        return np.r_[self.layout.molecule_mass, np.ones(self.layout.n_molecules)]
+
+    def channel_groups(self) -> NDArray[np.bool_]:
+        """Membership (2·n_groups, 2·n_molecules): translation groups, then rotation groups."""
+        g = self.layout.group_molecules
+        z = np.zeros_like(g)
+        return np.r_[np.c_[g, z], np.c_[z, g]]
+
+    # one frame --------------------------------------------------------------
+    def frame(
+        self, positions_A: ArrayLike, velocities_A_per_ps: ArrayLike, box: ArrayLike | None = None
+    ) -> NDArray[np.float64]:
+        """Channel values of one frame, shape (2·n_molecules, 3).
+
+        Rows 0..n-1: centre-of-mass velocities (Å/ps); rows n..2n-1: √I-weighted
+        angular velocities (√u Å/ps), see the module docstring.
+        """
+        lay = self.layout
+        x = np.asarray(positions_A, dtype=np.float64)
+        v = np.asarray(velocities_A_per_ps, dtype=np.float64)
+        n = lay.masses.size
+        if x.shape != (n, 3) or v.shape != (n, 3):
+            raise TrajectoryError(
+                f"frame {self.frames}: positions {x.shape} / velocities {v.shape} do not match the "
+                f"{n} atoms of the molecular layout"
+            )
+        m = lay.masses[:, None]
+        mol = lay.molecule_of_channel
+        M = lay.molecule_mass[:, None]
+        rel = _whole(lay, x, box)
+        com_rel = _reduce(lay, m * rel) / M
+        self._track_com(x[lay.first_channel] + com_rel, box)
+        rel -= com_rel[mol]
+        V = _reduce(lay, m * v) / M
+        dv = v - V[mol]
+        L = _reduce(lay, m * np.cross(rel, dv))
+        inertia = _inertia(lay, rel)
+        rot = np.zeros_like(V)
+        moments = np.zeros_like(V)
+        nonlinear = lay.rotational_dof == 3
+        if nonlinear.any():
+            vals, vecs = np.linalg.eigh(inertia[nonlinear])
+            vals, vecs = self._follow_axes(nonlinear, vals, vecs)
+            omega = np.linalg.solve(inertia[nonlinear], L[nonlinear][:, :, None])[:, :, 0]
+            body = np.einsum("nij,ni->nj", vecs, omega)
+            rot[nonlinear] = np.sqrt(np.clip(vals, 0, None)) * body
+            moments[nonlinear] = vals
+        linear = lay.rotational_dof == 2
+        if linear.any():
+            vals, vecs = np.linalg.eigh(inertia[linear])
+            axis = vecs[:, :, 0]
+            perp = 0.5 * (vals[:, 1] + vals[:, 2])
+            Ll = L[linear]
+            Lperp = Ll - np.einsum("ni,ni->n", Ll, axis)[:, None] * axis
+            rot[linear] = Lperp / np.sqrt(perp)[:, None]  # √I ω⊥ = L⊥/√I
+            moments[linear] = vals
+        self.moment_sum += moments
+        self.frames += 1
+        return np.r_[V, rot]
+
+    def _follow_axes(self, select, vals, vecs):
+        """Permute/sign-flip eigenvectors to best match the previous frame's axes."""
+        if self._axes is None:
+            self._axes = np.zeros((self.layout.n_molecules, 3, 3))
+            self._axes[select] = vecs
+            return vals, vecs
+        prev = self._axes[select]
+        overlap = np.einsum("nik,nil->nkl", prev, vecs)  # prev axis k vs new axis l
+        scores = np.abs(overlap[:, np.arange(3)[None, :], _PERMUTATIONS]).sum(axis=-1)
+        best = _PERMUTATIONS[np.argmax(scores, axis=1)]  # (n, 3): new index for old axis k
+        vecs = np.take_along_axis(vecs, best[:, None, :], axis=2)
+        vals = np.take_along_axis(vals, best, axis=1)
+        sign = np.sign(np.einsum("nik,nik->nk", prev, vecs))
+        sign[sign == 0] = 1.0
+        vecs = vecs * sign[:, None, :]
+        self._axes[select] = vecs
+        return vals, vecs
+
+    def _track_com(self, com: NDArray[np.float64], box) -> None:
+        if self._raw_com is None:
+            self.unwrapped_com = com.copy()
+        else:
+            self.unwrapped_com = self.unwrapped_com + _minimum_image(com - self._raw_com, box)
+        self._raw_com = com
+
+    # summaries --------------------------------------------------------------
+    def mean_moments(self) -> NDArray[np.float64]:
+        """Time-mean principal moments per molecule (n_molecules, 3), u Å², ascending for nonlinear."""
+        if self.frames == 0:
+            raise TrajectoryError("no frame was given to the molecular decomposition")
+        return self.moment_sum / self.frames
+
+
+class CentreOfMassDisplacement:
+    """Streaming mean-square displacement of unwrapped centres of mass per group.
+
+    Snapshots are kept every ``stride`` frames in a ring of ``n_lags + 1``, so
+    memory is (n_lags + 1) × n_molecules × 3 floats whatever the trajectory
+    length; lags are ``stride, 2·stride, …, n_lags·stride`` frames and every
+    snapshot is a time origin.
+
+    Parameters
+    ----------
+    group_molecules : bool array (n_groups, n_molecules)
+    timestep_ps : float
+        Frame spacing, ps.
+    max_lag_frames : int
+        Longest lag, frames (e.g. the segment length of the spectrum).
+    n_lags : int
+        Number of lags.
+    """
+
+    def __init__(self, group_molecules: ArrayLike, timestep_ps: float, max_lag_frames: int,
+                 n_lags: int = 32) -> None:
+        self.groups = np.asarray(group_molecules, dtype=bool)
+        self.stride = max(1, int(max_lag_frames) // int(n_lags))
+        self.n_lags = max(2, min(int(n_lags), int(max_lag_frames) // self.stride))
+        self.timestep_ps = float(timestep_ps)
+        self._ring: list[NDArray[np.float64]] = []
+        self._sums = np.zeros((self.groups.shape[0], self.n_lags))
+        self._counts = np.zeros(self.n_lags)
+        self._frame = 0
+
+    def add_frame(self, unwrapped_com_A: ArrayLike) -> None:
+        """Add one frame of unwrapped centres of mass (n_molecules, 3), Å."""
+        if self._frame % self.stride == 0:
+            now = np.asarray(unwrapped_com_A, dtype=np.float64).copy()
+            for k, old in enumerate(reversed(self._ring)):
+                d2 = np.einsum("ni,ni->n", now - old, now - old)
+                self._sums[:, k] += self.groups @ d2
+                self._counts[k] += 1
+            self._ring.append(now)
+            if len(self._ring) > self.n_lags:
+                self._ring.pop(0)
+        self._frame += 1
+
+    def result(self) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """(lag_ps (n_lags,), msd_A2 (n_groups, n_lags)) averaged over origins and molecules; NaN where unseen."""
+        lag = self.stride * self.timestep_ps * np.arange(1, self.n_lags + 1)
+        per_group = np.maximum(self.groups.sum(axis=1), 1)[:, None]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            msd = self._sums / (self._counts[None, :] * per_group)
+        return lag, msd
+
+    def self_diffusion_m2_per_s(self) -> NDArray[np.float64]:
+        """Einstein D = slope/6 (m²/s) of a straight-line fit over the longer 3/4 of the lags."""
+        lag, msd = self.result()
+        use = (lag >= 0.25 * lag[-1]) & (self._counts > 0)
+        out = np.full(msd.shape[0], np.nan)
+        if use.sum() < 2:
+            return out
+        for g in range(msd.shape[0]):
+            if self.groups[g].any():
+                slope = np.polyfit(lag[use], msd[g, use], 1)[0]  # Å²/ps
+                out[g] = slope / 6.0 * C.angstrom_m**2 / C.picosecond_s
+        return out

@@ -1,0 +1,214 @@
+"""Tests of qcorr.molecular: rigid-body kinematics (Goldstein, Classical
+Mechanics, 3rd ed., Ch. 4-5) on synthetic molecules whose answer is exact."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.spatial.transform import Rotation
+
+from qcorr import molecular as mo
+from qcorr.errors import ConfigError, TrajectoryError
+from qcorr.spectrum import SegmentAccumulator, SpectrumSettings
+
+RNG_SEED = 20261202
+
+# bent triatomic (water-like masses/geometry, u and Å), linear triatomic, one atom
+BENT = (np.array([15.999, 1.008, 1.008]),
+        np.array([[0.0, 0.0, 0.0], [0.9572, 0.0, 0.0], [-0.2400, 0.9266, 0.0]]))
+LINEAR = (np.array([15.999, 12.011, 15.999]),
+          np.array([[-1.16, 0.0, 0.0], [0.0, 0.0, 0.0], [1.16, 0.0, 0.0]]))
+ATOM = (np.array([39.948]), np.array([[0.0, 0.0, 0.0]]))
+BOX = np.array([12.0, 12.0, 12.0, 90.0, 90.0, 90.0])
+
+
+def _system(kinds, rng, box=BOX):
+    """Place molecules with random orientation and centre, some straddling the box edge."""
+    masses, ids, body, centres, rots = [], [], [], [], []
+    for i, (m, x) in enumerate(kinds):
+        com = (m @ x) / m.sum()
+        masses.append(m)
+        ids.append(np.full(m.size, i))
+        body.append(x - com)
+        centres.append(rng.uniform(0, box[:3]) if i % 2 else np.array([0.2, 11.9, 6.0]))
+        rots.append(Rotation.random(random_state=rng))
+    return np.concatenate(masses), np.concatenate(ids), body, centres, rots
+
+
+def _frame(body, centres, rots, V, W, t, box=BOX):
+    """Positions (wrapped into the box) and velocities v = V + w x r of rigid bodies."""
+    pos, vel = [], []
+    for b, c, r0, v, w in zip(body, centres, rots, V, W):
+        r = Rotation.from_rotvec(w * t) * r0  # constant lab-frame angular velocity w
+        rel = r.apply(b)
+        pos.append(c + v * t + rel)
+        vel.append(v + np.cross(w, rel))
+    pos = np.concatenate(pos)
+    return np.mod(pos, box[:3]), np.concatenate(vel)
+
+
+def test_rigid_kinetic_energy_splits_exactly():
+    # Koenig's theorem + rigid rotation: sum m v^2 = M V^2 + w.I.w, for bent,
+    # linear and one-atom molecules, including molecules cut by the box edge.
+    rng = np.random.default_rng(RNG_SEED)
+    kinds = [BENT, LINEAR, ATOM, BENT, LINEAR, BENT]
+    masses, ids, body, centres, rots = _system(kinds, rng)
+    V = rng.normal(size=(len(kinds), 3))
+    W = rng.normal(size=(len(kinds), 3))
+    for k, (m, x) in enumerate(kinds):  # spin about a linear axis is not a rotation dof
+        if k in (1, 4):
+            axis = rots[k].apply([1.0, 0.0, 0.0])
+            W[k] -= (W[k] @ axis) * axis
+    pos, vel = _frame(body, centres, rots, V, W, 0.0)
+    groups = np.ones((1, masses.size), dtype=bool)
+    layout = mo.build_layout(masses, ids, groups, pos, BOX)
+    assert layout.rotational_dof.tolist() == [3, 2, 0, 3, 2, 3]
+    dec = mo.MolecularDecomposer(layout)
+    out = dec.frame(pos, vel, BOX)
+    n = len(kinds)
+    np.testing.assert_allclose(out[:n], V, atol=1e-12)
+    total = np.einsum("i,ij,ij->", masses, vel, vel)
+    trn = np.einsum("i,ij,ij->", layout.molecule_mass, out[:n], out[:n])
+    rot = np.sum(out[n:] ** 2)
+    assert trn + rot == pytest.approx(total, rel=1e-12)
+    assert np.all(out[n + 2] == 0.0)  # the atom does not rotate
+
+
+def test_vibration_is_orthogonal_to_translation_and_rotation():
+    # Eckart-like internal velocities (no net momentum, no angular momentum)
+    # leave V and w unchanged; their energy is what remains for vibration.
+    rng = np.random.default_rng(RNG_SEED + 1)
+    masses, ids, body, centres, rots = _system([BENT], rng)
+    V, W = rng.normal(size=(1, 3)), rng.normal(size=(1, 3))
+    pos, vel = _frame(body, centres, rots, V, W, 0.0)
+    rel = rots[0].apply(body[0])
+    # symmetric stretch: radial velocities of the two H, balanced by O
+    vib = np.zeros((3, 3))
+    vib[1] = 0.3 * (rel[1] - rel[0])
+    vib[2] = 0.3 * (rel[2] - rel[0])
+    vib[0] = -(masses[1] * vib[1] + masses[2] * vib[2]) / masses[0]
+    lv = np.sum(masses[:, None] * np.cross(rel, vib), axis=0)
+    # remove any angular momentum the stretch carries (project it out as a rotation)
+    inertia = sum(m * (r @ r * np.eye(3) - np.outer(r, r)) for m, r in zip(masses, rel))
+    vib -= np.cross(np.linalg.solve(inertia, lv), rel)
+    layout = mo.build_layout(masses, ids, np.ones((1, 3), bool), pos, BOX)
+    dec = mo.MolecularDecomposer(layout)
+    rigid = dec.frame(pos, vel, BOX)
+    dec2 = mo.MolecularDecomposer(layout)
+    flexible = dec2.frame(pos, vel + vib, BOX)
+    np.testing.assert_allclose(flexible, rigid, atol=1e-10)
+
+
+def test_spin_about_principal_axis_gives_constant_channels():
+    # Rotation about a principal axis at constant rate: body-frame angular
+    # velocity is constant (Euler's equations), so the followed-axis channels
+    # must not change sign or label from frame to frame.
+    rng = np.random.default_rng(RNG_SEED + 2)
+    masses, ids, body, centres, rots = _system([BENT], rng)
+    rel0 = rots[0].apply(body[0])
+    inertia = sum(m * (r @ r * np.eye(3) - np.outer(r, r)) for m, r in zip(masses, rel0))
+    _, axes = np.linalg.eigh(inertia)
+    W = np.array([3.0 * axes[:, 1]])
+    V = np.zeros((1, 3))
+    pos, vel = _frame(body, centres, rots, V, W, 0.0)
+    layout = mo.build_layout(masses, ids, np.ones((1, 3), bool), pos, BOX)
+    dec = mo.MolecularDecomposer(layout)
+    first = dec.frame(pos, vel, BOX)
+    for t in np.linspace(0.01, 5.0, 60):  # several full turns
+        pos, vel = _frame(body, centres, rots, V, W, t)
+        np.testing.assert_allclose(dec.frame(pos, vel, BOX), first, atol=1e-9)
+
+
+def test_dof_split_from_spectra_maxwell_boltzmann():
+    # Parseval: with velocities drawn from Maxwell-Boltzmann at equipartition,
+    # the spectra integrate to 3 (translation) and 3 or 2 (rotation) per
+    # molecule, and for rigid molecules atoms - translation - rotation = 0.
+    rng = np.random.default_rng(RNG_SEED + 3)
+    kinds = [BENT] * 40 + [LINEAR] * 40
+    masses, ids, body, centres, rots = _system(kinds, rng)
+    n = len(kinds)
+    kT = 2.494  # kJ/mol at 300 K; u A^2 ps^-2 = 0.01 kJ/mol
+    kT_u = kT * 100.0
+    pos, _ = _frame(body, centres, rots, np.zeros((n, 3)), np.zeros((n, 3)), 0.0)
+    groups = np.zeros((2, masses.size), bool)
+    groups[0, ids < 40] = True
+    groups[1, ids >= 40] = True
+    layout = mo.build_layout(masses, ids, groups, pos, BOX)
+    dec = mo.MolecularDecomposer(layout)
+    settings = SpectrumSettings(timestep_ps=0.01, segment_frames=16, overlap=0.0, taper="none")
+    atoms = SegmentAccumulator(settings, masses, groups)
+    mols = SegmentAccumulator(settings, dec.channel_weights(), dec.channel_groups())
+    principal = []
+    for k, (m, x) in enumerate(kinds):
+        rel = rots[k].apply(body[k])
+        inertia = sum(mm * (r @ r * np.eye(3) - np.outer(r, r)) for mm, r in zip(m, rel))
+        vals, vecs = np.linalg.eigh(inertia)
+        keep = vals > 1e-6 * vals[-1]
+        principal.append((vecs, np.where(keep, np.sqrt(kT_u / np.where(keep, vals, 1)), 0.0)))
+    mol_mass = np.array([m.sum() for m, _ in kinds])
+    rel_all = np.concatenate([rots[k].apply(body[k]) for k in range(n)])
+    for step in range(16 * 20):
+        # fresh thermal velocities every frame (white spectrum); rigid geometry
+        V = rng.normal(size=(n, 3)) * np.sqrt(kT_u / mol_mass)[:, None]
+        W = np.array([vecs @ (rng.normal(size=3) * scale) for vecs, scale in principal])
+        vel = V[ids] + np.cross(W[ids], rel_all)
+        atoms.add_frame(vel)
+        mols.add_frame(dec.frame(pos, vel, BOX))
+    a = atoms.result().mean_square.mean(axis=1) / kT_u
+    m = mols.result().mean_square.mean(axis=1) / kT_u
+    trn, rot = m[:2], m[2:]
+    np.testing.assert_allclose(a - trn - rot, 0.0, atol=1e-9 * a.max())
+    # 40 molecules x 320 frames: relative standard error ~ sqrt(2/(3*40*320)) = 0.7 %
+    assert trn / 40 == pytest.approx([3.0, 3.0], rel=0.03)
+    assert rot / 40 == pytest.approx([3.0, 2.0], rel=0.03)
+
+
+def test_groups_of_whole_molecules_and_bad_input():
+    rng = np.random.default_rng(RNG_SEED + 4)
+    masses, ids, body, centres, rots = _system([BENT, BENT], rng)
+    pos, _ = _frame(body, centres, rots, np.zeros((2, 3)), np.zeros((2, 3)), 0.0)
+    groups = np.array([[True] * 6, [True] * 3 + [False] * 3, [True, False, False] * 2])
+    layout = mo.build_layout(masses, ids, groups, pos, BOX)
+    assert layout.group_whole.tolist() == [True, True, False]
+    assert layout.group_molecules.tolist() == [[True, True], [True, False], [False, False]]
+    with pytest.raises(ConfigError, match="positive masses"):
+        mo.build_layout(np.r_[masses[:-1], 0.0], ids, groups, pos, BOX)
+    with pytest.raises(ConfigError, match="same 6 atoms"):
+        mo.build_layout(masses, ids[:-1], groups, pos, BOX)
+    dec = mo.MolecularDecomposer(layout)
+    with pytest.raises(TrajectoryError, match="frame 0"):
+        dec.frame(pos[:-1], pos[:-1], BOX)
+
+
+def test_msd_recovers_random_walk_diffusion():
+    # Einstein relation MSD = 6 D t for a Gaussian random walk of the centres
+    # (each step N(0, 2 D dt) per axis); positions wrapped into the box must be
+    # unwrapped.  600 walkers, lags up to 40 steps: statistical error ~ 2 %.
+    rng = np.random.default_rng(RNG_SEED + 5)
+    n, dt, D = 600, 0.1, 0.05  # ps, A^2/ps
+    masses = np.full(n, 39.948)
+    x = rng.uniform(0, 12.0, size=(n, 3))
+    layout = mo.build_layout(masses, np.arange(n), np.ones((1, n), bool), x, BOX)
+    dec = mo.MolecularDecomposer(layout)
+    msd = mo.CentreOfMassDisplacement(layout.group_molecules, dt, max_lag_frames=40, n_lags=20)
+    for _ in range(400):
+        dec.frame(np.mod(x, 12.0), np.zeros((n, 3)), BOX)
+        msd.add_frame(dec.unwrapped_com)
+        x = x + rng.normal(scale=np.sqrt(2 * D * dt), size=(n, 3))
+    d = msd.self_diffusion_m2_per_s()[0]
+    assert d == pytest.approx(D * 1e-8, rel=0.05)  # 1 A^2/ps = 1e-8 m^2/s
+
+
+def test_molecule_ids_from_universe_residues_and_fragments():
+    import MDAnalysis as mda
+
+    u = mda.Universe.empty(6, n_residues=2, atom_resindex=[0, 0, 0, 1, 1, 1], trajectory=True)
+    u.add_TopologyAttr("masses", [16.0, 1.0, 1.0] * 2)
+    np.testing.assert_array_equal(mo.molecule_ids_from_universe(u, np.arange(6)), [0, 0, 0, 1, 1, 1])
+    with pytest.raises(ConfigError, match="needs bonds"):
+        mo.molecule_ids_from_universe(u, np.arange(6), "fragment")
+    u.add_TopologyAttr("bonds", [(0, 1), (0, 2), (3, 4)])
+    np.testing.assert_array_equal(
+        mo.molecule_ids_from_universe(u, np.arange(6), "fragment"), [0, 0, 0, 1, 1, 2])
+    with pytest.raises(ConfigError, match="--molecules"):
+        mo.molecule_ids_from_universe(u, np.arange(6), "chain")
