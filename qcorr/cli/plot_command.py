@@ -1,0 +1,79 @@
+"""``qcorr plot``: figures of a spectrum file (parsing only; drawing in :mod:`qcorr.plotting`)."""
+
+from __future__ import annotations
+
+import argparse
+
+from qcorr.errors import ConfigError
+
+NAME = "plot"
+HELP = "draw the spectrum with the quantum weighting functions, and the cumulative corrections"
+DESCRIPTION = (
+    "Draw two figures from a spectrum file: the vibrational density of states of every "
+    "atom group with the quantum weighting functions of heat capacity and thermal energy "
+    "over it, and the running integral of each harmonic quantum correction (Berens et al., "
+    "J. Chem. Phys. 79, 2375 (1983)) against the upper wavenumber, which shows the bands "
+    "that carry each correction. The file extension (.svg, .png, .pdf) picks the format."
+)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("spectrum", metavar="SPECTRUM.nc", help="spectrum file from 'qcorr spectrum'")
+    parser.add_argument(
+        "--spectrum-figure", metavar="FILE",
+        help="write the spectrum with the weighting functions here (.svg, .png or .pdf)",
+    )
+    parser.add_argument(
+        "--cumulative-figure", metavar="FILE",
+        help="write the cumulative corrections here (.svg, .png or .pdf)",
+    )
+    parser.add_argument(
+        "--temperature", type=float, metavar="K", default=None,
+        help="temperature in K of the weighting functions (default: the temperature stored "
+        "in the spectrum file; another value assumes the modes stay harmonic)",
+    )
+    parser.add_argument(
+        "--group", default="total",
+        help="atom group whose cumulative corrections are drawn",
+    )
+    parser.add_argument(
+        "--basis", choices=("molecules", "atoms", "system"), default="molecules",
+        help="cumulative corrections per mole of molecules of the group (J/(mol K), kJ/mol), "
+        "per mole of its atoms, or for the whole simulated system (J/K, kJ)",
+    )
+    parser.add_argument(
+        "--max-wavenumber", type=float, metavar="CM-1", default=None,
+        help="upper end of the wavenumber axis in cm^-1 (default: where the total spectrum "
+        "holds 99.9%% of its weight, plus 15%%)",
+    )
+
+
+def run(args: argparse.Namespace) -> int:
+    from qcorr import plotting
+    from qcorr.spectrum_file import read_spectrum
+
+    if not args.spectrum_figure and not args.cumulative_figure:
+        raise ConfigError(
+            "give --spectrum-figure FILE and/or --cumulative-figure FILE: nothing to draw"
+        )
+    for option, path in (("--spectrum-figure", args.spectrum_figure),
+                         ("--cumulative-figure", args.cumulative_figure)):
+        if path:
+            plotting.figure_format(path, option)
+    if args.max_wavenumber is not None and not args.max_wavenumber > 0:
+        raise ConfigError(f"--max-wavenumber {args.max_wavenumber!r}: must be > 0 cm^-1")
+    ds = read_spectrum(args.spectrum)
+    if args.cumulative_figure:
+        # checks group, basis and temperature before anything is written
+        plotting.cumulative_corrections(ds, args.group, args.temperature, args.basis)
+    written = []
+    if args.spectrum_figure:
+        written.append(plotting.plot_spectrum(ds, args.spectrum_figure, args.temperature,
+                                              args.max_wavenumber))
+    if args.cumulative_figure:
+        written.append(plotting.plot_cumulative(ds, args.cumulative_figure, args.group,
+                                                args.temperature, args.basis,
+                                                args.max_wavenumber))
+    for path in written:
+        print(f"qcorr plot: wrote {path}")
+    return 0
