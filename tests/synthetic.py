@@ -27,7 +27,7 @@ from pathlib import Path
 import numpy as np
 from scipy import constants as sc
 
-#: u Å² ps⁻² per J/mol ... kT/m in (Å/ps)² for T in K and m in u is k_B T / (m u) * 1e-4
+#: k_B/u in (Å/ps)² per K: kT/m = _KT_OVER_M_A2_PS2 · T / m[u] (CODATA via scipy.constants)
 _KT_OVER_M_A2_PS2 = sc.k / sc.atomic_mass * (sc.pico / sc.angstrom) ** 2
 
 
@@ -81,13 +81,19 @@ def diatomic_oscillators(
     box_A: float = 20.0,
     seed: int = 20261202,
     time_offset_ps: float = 0.0,
+    kinetic_scale: float = 1.0,
 ) -> Scenario:
-    """Build the antiphase-diatomic scenario (see the module docstring)."""
+    """Build the antiphase-diatomic scenario (see the module docstring).
+
+    *kinetic_scale* multiplies every m⟨v²⟩ (amplitude × sqrt(kinetic_scale)); with
+    ``(3N − 3)/(3N)`` the kinetic temperature over the 3N − 3 degrees of freedom left
+    after centre-of-mass removal equals *temperature_K* exactly.
+    """
     rng = np.random.default_rng(seed)
     freqs = np.asarray(frequencies_Hz, dtype=float)
     n_mol = len(freqs)
     t = time_offset_ps + np.arange(n_frames) * timestep_ps
-    amplitude = np.sqrt(2.0 * _KT_OVER_M_A2_PS2 * temperature_K / mass_u)  # Å/ps
+    amplitude = np.sqrt(2.0 * kinetic_scale * _KT_OVER_M_A2_PS2 * temperature_K / mass_u)  # Å/ps
     omega = 2.0 * np.pi * freqs * sc.pico  # rad/ps
     phases = rng.uniform(0, 2 * np.pi, size=(n_mol, 3))
     centres = rng.uniform(2.0, box_A - 2.0, size=(n_mol, 3))
