@@ -42,13 +42,9 @@ from matplotlib.figure import Figure
 from scipy.integrate import cumulative_trapezoid
 
 from qcorr import weights
-from qcorr.constants import (
-    boltzmann_J_per_K,
-    gas_constant_J_per_mol_K,
-    reduced_frequency,
-    wavenumber_per_THz,
-)
+from qcorr.constants import reduced_frequency, wavenumber_per_THz
 from qcorr.errors import ConfigError, PhysicsError
+from qcorr.harmonic import to_physical, unit_of
 from qcorr.safe_write import atomic_path
 
 #: figure file formats qcorr writes, by file-name extension
@@ -63,8 +59,8 @@ CUMULATIVE_PROPERTIES: tuple[str, ...] = (
     "zero_point_energy",
 )
 
-#: bases of the cumulative corrections: per mole of molecules, per mole of atoms, per system
-BASES: tuple[str, ...] = ("molecules", "atoms", "system")
+#: bases of the cumulative corrections (the table's spellings, DEVELOPERS.md)
+BASES: tuple[str, ...] = ("per_mole_molecules", "per_mole_atoms", "per_system")
 
 _LABELS = {
     "heat_capacity": "heat capacity ΔCv",
@@ -114,42 +110,26 @@ def _check_temperature(temperature_K: float) -> float:
     return temperature_K
 
 
-def basis_divisor(ds: xr.Dataset, group: str, basis: str) -> tuple[float, str, str]:
-    """Amount of substance a system value is divided by for *basis*.
-
-    Parameters
-    ----------
-    ds : xarray.Dataset
-        Spectrum file contents.
-    group : str
-        Atom group.
-    basis : {"molecules", "atoms", "system"}
-        Per mole of molecules (``molecule_count``), per mole of atoms
-        (``atom_count``), or for the simulated system as a whole.
-
-    Returns
-    -------
-    (divisor, energy_unit, entropy_unit)
-        ``divisor`` in mol (1 for ``system``); the units the corrections then have.
-    """
+def _check_basis(ds: xr.Dataset, group: str, basis: str) -> tuple[float, float]:
+    """Molecule and atom counts of *group*, checked for *basis*."""
     if basis not in BASES:
         raise ConfigError(f"--basis {basis!r}: choose one of {', '.join(BASES)}")
-    if basis == "system":
-        return 1.0, "kJ", "J/K"
-    variable = "molecule_count" if basis == "molecules" else "atom_count"
-    count = float(ds[variable].sel(group=group))
-    if not count > 0:
+    molecules = float(ds["molecule_count"].sel(group=group))
+    atoms = float(ds["atom_count"].sel(group=group))
+    needed = {"per_mole_molecules": ("molecule_count", molecules),
+              "per_mole_atoms": ("atom_count", atoms)}.get(basis)
+    if needed is not None and not needed[1] > 0:
         raise PhysicsError(
-            f"group {group!r} has {variable} = {count:g}; choose another --basis"
+            f"group {group!r} has {needed[0]} = {needed[1]:g}; choose another --basis"
         )
-    return count, "kJ/mol", "J/(mol K)"
+    return molecules, atoms
 
 
 def cumulative_corrections(
     ds: xr.Dataset,
     group: str = "total",
     temperature_K: float | None = None,
-    basis: str = "molecules",
+    basis: str = "per_mole_molecules",
 ) -> xr.Dataset:
     """Running integrals of the harmonic quantum corrections of one group.
 
@@ -163,8 +143,9 @@ def cumulative_corrections(
         Temperature in K of the weighting functions; default the file's
         ``temperature_K`` (the temperature the spectrum was measured at; any other
         value assumes the modes stay harmonic).
-    basis : {"molecules", "atoms", "system"}
-        Per mole of molecules of the group, per mole of its atoms, or per system.
+    basis : {"per_mole_molecules", "per_mole_atoms", "per_system"}
+        Per mole of molecules of the group, per mole of its atoms, or for the
+        simulated group as a whole (the bases of the property table).
 
     Returns
     -------
@@ -174,7 +155,8 @@ def cumulative_corrections(
         system), energies in kJ/mol (kJ per system).  Value at ν̃:
         ``c ∫_0^ν̃ S(ν̃') ΔW(u) dν̃'`` with ``c = k`` or ``k T`` times ``N_A/n`` for a
         molar basis (``n`` molecules or atoms of the group), by the trapezoid rule,
-        starting at 0.  Attributes ``temperature_K``, ``group``, ``basis``.
+        starting at 0; the conversion is :func:`qcorr.harmonic.to_physical`, the one
+        the property table uses.  Attributes ``temperature_K``, ``group``, ``basis``.
 
     Notes
     -----
@@ -192,26 +174,21 @@ def cumulative_corrections(
     temperature_K = _check_temperature(
         ds.attrs["temperature_K"] if temperature_K is None else temperature_K
     )
-    divisor, energy_unit, entropy_unit = basis_divisor(ds, group, basis)
+    molecules, atoms = _check_basis(ds, group, basis)
     wavenumber = np.asarray(ds["wavenumber"].values, dtype=float)
     density = np.asarray(ds["vdos"].sel(group=group).values, dtype=float)
     u = reduced_frequency(wavenumber, temperature_K)
     positive = u > 0
-    if basis == "system":
-        per_k, per_kT = boltzmann_J_per_K, boltzmann_J_per_K * temperature_K / 1000.0
-    else:
-        per_k = gas_constant_J_per_mol_K / divisor
-        per_kT = gas_constant_J_per_mol_K * temperature_K / 1000.0 / divisor
     out = xr.Dataset(coords={"wavenumber": ds["wavenumber"]})
     for name in CUMULATIVE_PROPERTIES:
         prop = weights.get_property(name)
         delta = np.zeros_like(u)
         delta[positive] = prop.correction(u[positive])  # limit u -> 0 of every correction is 0
-        factor = per_kT if prop.times_kT else per_k
-        running = factor * cumulative_trapezoid(density * delta, wavenumber, initial=0.0)
+        modes = cumulative_trapezoid(density * delta, wavenumber, initial=0.0)
+        running = to_physical(modes, prop, temperature_K, basis, molecules, atoms)
         out[name] = ("wavenumber", running)
         out[name].attrs = {
-            "units": energy_unit if prop.times_kT else entropy_unit,
+            "units": unit_of(prop, basis),
             "long_name": f"cumulative quantum correction of {prop.description}",
         }
     out.attrs = {"temperature_K": temperature_K, "group": group, "basis": basis}
@@ -335,7 +312,7 @@ def plot_cumulative(
     path: str | os.PathLike[str],
     group: str = "total",
     temperature_K: float | None = None,
-    basis: str = "molecules",
+    basis: str = "per_mole_molecules",
     max_wavenumber: float | None = None,
     title: str | None = None,
 ) -> Path:
@@ -351,8 +328,8 @@ def plot_cumulative(
         Atom group (default ``total``).
     temperature_K : float, optional
         Temperature in K (default: the file's).
-    basis : {"molecules", "atoms", "system"}
-        Per mole of molecules, per mole of atoms, or per system.
+    basis : {"per_mole_molecules", "per_mole_atoms", "per_system"}
+        Per mole of molecules, per mole of atoms, or per simulated system.
     max_wavenumber : float, optional
         Upper end of the axis in cm⁻¹ (default :func:`default_upper_wavenumber`).
     title : str, optional
@@ -384,8 +361,7 @@ def plot_cumulative(
         axes.set_ylabel(f"cumulative correction ({running[names[0]].attrs['units']})")
         axes.legend(fontsize="small")
         _add_frequency_axis(axes)
-    per = {"molecules": "per mole of molecules", "atoms": "per mole of atoms",
-           "system": "per simulated system"}[basis]
+    per = basis.replace("_", " ").replace("per system", "per simulated system")
     figure.suptitle(
         title
         or f"quantum corrections of group {group}, {per}, at {running.attrs['temperature_K']:g} K"

@@ -115,7 +115,7 @@ def test_cumulative_matches_debye_solid(ratio):
 
     The trapezoid error on the 0.05 cm^-1 grid is ~h²/12·|f''| ≈ 1e-8 relative here."""
     temperature = ratio * DEBYE_TEMPERATURE
-    running = plotting.cumulative_corrections(debye_dataset(temperature), basis="atoms")
+    running = plotting.cumulative_corrections(debye_dataset(temperature), basis="per_mole_atoms")
     assert running["heat_capacity"].attrs["units"] == "J/(mol K)"
     assert running["energy"].attrs["units"] == "kJ/mol"
     expected_cv = debye_heat_capacity_per_mol_atoms(temperature) - 3 * R
@@ -138,7 +138,7 @@ def test_cumulative_matches_debye_solid(ratio):
 
 def test_debye_table_value_at_debye_temperature():
     """Cv/3Nk = 0.9517 at T = θ_D (Debye-function tables; value from memory, 4 digits)."""
-    running = plotting.cumulative_corrections(debye_dataset(DEBYE_TEMPERATURE), basis="atoms")
+    running = plotting.cumulative_corrections(debye_dataset(DEBYE_TEMPERATURE), basis="per_mole_atoms")
     ratio = (3 * R + value_at(running, "heat_capacity", DEBYE_WAVENUMBER)) / (3 * R)
     assert ratio == pytest.approx(0.9517, abs=1e-4)
 
@@ -146,7 +146,7 @@ def test_debye_table_value_at_debye_temperature():
 def test_signs_and_monotone_shape():
     """Berens et al. (1983): ΔCv < 0, ΔE, ΔS, ΔA > 0 for every mode, so the running
     integrals of a positive spectrum are monotone from 0."""
-    running = plotting.cumulative_corrections(debye_dataset(300.0), basis="atoms")
+    running = plotting.cumulative_corrections(debye_dataset(300.0), basis="per_mole_atoms")
     for name, sign in (("heat_capacity", -1), ("entropy", 1), ("energy", 1),
                        ("helmholtz_free_energy", 1), ("zero_point_energy", 1)):
         values = sign * running[name].values
@@ -158,9 +158,9 @@ def test_signs_and_monotone_shape():
 def test_bases_differ_by_the_counts():
     """per mole of molecules = per mole of atoms × atoms/molecules; per system = × n/N_A."""
     ds = debye_dataset(200.0, atoms=6, molecules=2)
-    atoms = plotting.cumulative_corrections(ds, basis="atoms")
-    molecules = plotting.cumulative_corrections(ds, basis="molecules")
-    system = plotting.cumulative_corrections(ds, basis="system")
+    atoms = plotting.cumulative_corrections(ds, basis="per_mole_atoms")
+    molecules = plotting.cumulative_corrections(ds, basis="per_mole_molecules")
+    system = plotting.cumulative_corrections(ds, basis="per_system")
     np.testing.assert_allclose(molecules["entropy"].values, atoms["entropy"].values * 3, rtol=1e-12)
     np.testing.assert_allclose(system["energy"].values,
                                atoms["energy"].values * 6 / constants.N_A, rtol=1e-12)
@@ -169,7 +169,7 @@ def test_bases_differ_by_the_counts():
 
 def test_other_temperature_uses_it():
     ds = debye_dataset(100.0)
-    running = plotting.cumulative_corrections(ds, temperature_K=DEBYE_TEMPERATURE, basis="atoms")
+    running = plotting.cumulative_corrections(ds, temperature_K=DEBYE_TEMPERATURE, basis="per_mole_atoms")
     assert running.attrs["temperature_K"] == DEBYE_TEMPERATURE
     expected = debye_heat_capacity_per_mol_atoms(DEBYE_TEMPERATURE) - 3 * R
     assert value_at(running, "heat_capacity", DEBYE_WAVENUMBER) == pytest.approx(expected, rel=1e-6)
@@ -213,7 +213,7 @@ def spectrum_file(tmp_path):
 
 def test_command_writes_both_figures(spectrum_file, tmp_path, capsys):
     status = main(["plot", str(spectrum_file), "--spectrum-figure", str(tmp_path / "s.svg"),
-                   "--cumulative-figure", str(tmp_path / "c.svg"), "--basis", "atoms"])
+                   "--cumulative-figure", str(tmp_path / "c.svg"), "--basis", "per_mole_atoms"])
     assert status == 0
     assert (tmp_path / "s.svg").stat().st_size > 1000
     assert (tmp_path / "c.svg").stat().st_size > 1000
@@ -253,3 +253,22 @@ def test_command_refuses_foreign_file_by_subprocess(tmp_path):
 def test_command_needs_a_figure(spectrum_file, capsys):
     assert main(["plot", str(spectrum_file)]) != 0
     assert "nothing to draw" in capsys.readouterr().err
+
+
+def test_right_edge_equals_the_property_table(spectrum_file, tmp_path):
+    """The caption's promise: the right end of each curve is the table's whole correction
+    (both are the trapezoid integral of S·ΔW on the file's grid; here checked against
+    the output of 'qcorr properties' on the same file)."""
+    import pandas as pd
+
+    from qcorr.spectrum_file import read_spectrum
+
+    table_path = tmp_path / "table.csv"
+    assert main(["properties", str(spectrum_file), "--output", str(table_path), "--quiet"]) == 0
+    table = pd.read_csv(table_path)
+    running = plotting.cumulative_corrections(read_spectrum(spectrum_file), basis="per_mole_atoms")
+    rows = table[(table["group"] == "total") & (table["method"] == "harmonic")
+                 & (table["basis"] == "per_mole_atoms")]
+    for name in plotting.CUMULATIVE_PROPERTIES:
+        expected = float(rows.loc[rows["property"] == name, "correction"].iloc[0])
+        assert float(running[name].values[-1]) == pytest.approx(expected, rel=1e-9), name

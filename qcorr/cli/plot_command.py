@@ -37,7 +37,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="atom group whose cumulative corrections are drawn",
     )
     parser.add_argument(
-        "--basis", choices=("molecules", "atoms", "system"), default="molecules",
+        "--basis", choices=("per_mole_molecules", "per_mole_atoms", "per_system"),
+        default="per_mole_molecules",
         help="cumulative corrections per mole of molecules of the group (J/(mol K), kJ/mol), "
         "per mole of its atoms, or for the whole simulated system (J/K, kJ)",
     )
