@@ -91,7 +91,7 @@ TAPERS = ("hann", "none")
 FINITE_DIFFERENCE_SCHEMES = ("forward", "central")
 
 #: bytes of FFT workspace aimed at per chunk of channels (keeps temporaries in cache)
-_CHUNK_BYTES = 4 * 1024 * 1024
+_CHUNK_BYTES = 1024 * 1024
 
 
 @dataclass(frozen=True)
@@ -379,6 +379,7 @@ class SegmentAccumulator:
         self._chunk = min(rows, chunk)
         # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
         self.workspace = np.zeros((self._chunk, 2 * L))
+        self._tapered = np.zeros((self._chunk, L // 2 + 1), dtype=np.complex128)
         window = taper_window(settings)
         self._window_power = float(np.sum(window * window))
         self._frames_fed = 0
@@ -433,8 +434,8 @@ class SegmentAccumulator:
         r = start % L  # ring row holding the segment's first frame
         hann = self.settings.taper == "hann"
         G = self.n_groups
-        corr_spectrum = np.zeros((G, L + 1))
-        power = np.zeros((G, half + 1))
+        corr_spectrum = np.zeros((G, 2 * (L + 1)))  # real/imaginary parts interleaved
+        power = np.zeros((G, 2 * (half + 1)))
         for c0 in range(0, self._rows, self._chunk):
             c1 = min(self._rows, c0 + self._chunk)
             n = c1 - c0
@@ -444,17 +445,29 @@ class SegmentAccumulator:
                 work[:, L - r : L] = self.buffer[:r, c0:c1].T
             z = scipy.fft.rfft(work, n=2 * L, axis=-1, workers=self.workers)
             w = self._row_weights[:, c0:c1]
-            corr_spectrum += w @ (z.real**2 + z.imag**2)
             x = z[:, ::2]  # L-point DFT of the untapered segment, m = 0 .. L/2
+            y = self._tapered[:n]
             if hann:
-                y = 0.5 * x
-                y[:, 1:-1] -= 0.25 * (x[:, :-2] + x[:, 2:])
+                # 4 Y[m] = 2 X[m] - X[m-1] - X[m+1]; the factor 16 is removed below
+                np.multiply(x, 2.0, out=y)
+                np.subtract(y[:, 1:-1], x[:, :-2], out=y[:, 1:-1])
+                np.subtract(y[:, 1:-1], x[:, 2:], out=y[:, 1:-1])
                 # X[-1] = conj X[1] and X[L/2+1] = conj X[L/2-1] (real data)
-                y[:, 0] -= 0.5 * x[:, 1].real
-                y[:, -1] -= 0.5 * x[:, -2].real
+                y[:, 0] -= 2.0 * x[:, 1].real
+                y[:, -1] -= 2.0 * x[:, -2].real
             else:
-                y = x
-            power += w @ (y.real**2 + y.imag**2)
+                np.copyto(y, x)
+            yf = y.view(np.float64)
+            np.multiply(yf, yf, out=yf)
+            power += np.einsum("gr,rf->gf", w, yf)
+            zf = z.view(np.float64)
+            np.multiply(zf, zf, out=zf)
+            corr_spectrum += np.einsum("gr,rf->gf", w, zf)
+        # |z|^2 = re^2 + im^2: add the interleaved halves (group level, cheap)
+        corr_spectrum = corr_spectrum[:, 0::2] + corr_spectrum[:, 1::2]
+        power = power[:, 0::2] + power[:, 1::2]
+        if hann:
+            power /= 16.0
         dt_s = self.settings.timestep_ps * constants.picosecond_s
         power *= 2.0 * dt_s / self._window_power
         lagged = scipy.fft.irfft(corr_spectrum, n=2 * L, axis=-1)[:, :L]
