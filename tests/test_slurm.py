@@ -1,0 +1,234 @@
+"""The demo workflow on a real SLURM cluster, through Snakemake's SLURM executor plugin (issue 7).
+
+These tests need a running SLURM cluster whose jobs see this Python environment.
+In CI, ``.ci/run`` starts a single-node cluster with ``.ci/slurm/start.sh`` (Debian's
+slurmctld, slurmd and munge on localhost) and stops it afterwards.
+
+* Without a cluster the tests are skipped with the reason, unless the environment
+  variable ``CI`` is set (non-empty, not ``false``/``0``): then a missing cluster is
+  a failure, so that CI cannot pass by skipping them.
+* The workflow runs with the CI-only global profile ``.ci/slurm/profile.yaml``
+  (``executor: slurm``; job status from ``squeue``, since the test cluster keeps no
+  accounting database and ``sacct`` cannot answer), wrapped in ``timeout -k`` so
+  that a hung run is killed; jobs left behind are cancelled by their job name.
+* The check: the merged property table of the SLURM run equals, cell by cell, that
+  of a local run (``--cores``) of the same workflow on the same inputs, and every
+  job that was not a local rule ran as a SLURM job that completed.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+import uuid
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+REPO = Path(__file__).resolve().parents[1]
+PROFILE_DIR = REPO / ".ci" / "slurm"
+SNAKEFILE = REPO / "workflow" / "Snakefile"
+
+#: hard limit for one Snakemake run, s (the demo takes about a minute on 2 cores)
+RUN_LIMIT_S = 900
+#: grace period after SIGTERM before SIGKILL (Snakemake may ignore SIGTERM while it waits)
+KILL_AFTER_S = 30
+
+pytestmark = pytest.mark.slurm
+
+
+def ci_is_set() -> bool:
+    """True when the CI environment variable is set (CI=true in CI)."""
+    return os.environ.get("CI", "").strip().lower() not in ("", "0", "false", "no")
+
+
+def cluster_problem() -> str | None:
+    """Why no usable SLURM cluster is reachable, or None when one is."""
+    for tool in ("sinfo", "sbatch", "squeue", "scancel"):
+        if shutil.which(tool) is None:
+            return f"the SLURM client command {tool!r} is not installed"
+    try:
+        states = subprocess.run(
+            ["sinfo", "--noheader", "--format=%T"],
+            check=False,
+            capture_output=True,
+            text=True,
+            timeout=20,
+        )
+    except subprocess.TimeoutExpired:
+        return "'sinfo' did not answer within 20 s (is slurmctld running?)"
+    if states.returncode != 0:
+        said = (states.stderr or states.stdout).strip().splitlines() or ["no message"]
+        return f"'sinfo' failed: {said[-1]}"
+    usable = {"idle", "mixed", "allocated", "completing"}
+    found = [s.strip().rstrip("*~#") for s in states.stdout.split()]
+    if not usable.intersection(found):
+        return f"no SLURM node is up (node states: {', '.join(found) or 'none'})"
+    return None
+
+
+@pytest.fixture(scope="module")
+def slurm_cluster() -> None:
+    """Skip (developer machine) or fail (CI set) when no SLURM cluster is usable."""
+    problem = cluster_problem()
+    if problem is None:
+        return
+    if ci_is_set():
+        pytest.fail(
+            f"CI is set but no SLURM cluster is usable: {problem}. .ci/run starts one with "
+            ".ci/slurm/start.sh; see its output above the test log."
+        )
+    pytest.skip(
+        f"no SLURM cluster: {problem} (start one as root with .ci/slurm/start.sh; "
+        "set CI=true to make this a failure)"
+    )
+
+
+def cancel_jobs(name_prefix: str) -> None:
+    """Cancel every job of ours still queued or running (job names start with the prefix)."""
+    listing = subprocess.run(
+        ["squeue", "--noheader", "--format=%i %j"],
+        check=False,
+        capture_output=True,
+        text=True,
+        timeout=30,
+    )
+    ids = [
+        line.split()[0]
+        for line in listing.stdout.splitlines()
+        if len(line.split()) == 2 and line.split()[1].startswith(name_prefix)
+    ]
+    if ids:
+        subprocess.run(["scancel", *ids], check=False, capture_output=True, timeout=30)
+
+
+def our_jobs(name_prefix: str) -> list[tuple[str, str]]:
+    """(job id, state) of every job whose name starts with the prefix, finished ones included.
+
+    Finished jobs stay visible to squeue for MinJobAge seconds (600 on the test cluster).
+    """
+    listing = subprocess.run(
+        ["squeue", "--noheader", "--states=all", "--format=%i %j %T"],
+        capture_output=True,
+        text=True,
+        timeout=30,
+        check=True,
+    )
+    jobs = []
+    for line in listing.stdout.splitlines():
+        fields = line.split()
+        if len(fields) == 3 and fields[1].startswith(name_prefix):
+            jobs.append((fields[0], fields[2]))
+    return jobs
+
+
+def run_limited(command: list[str], cwd: Path, log: Path) -> subprocess.CompletedProcess:
+    """Run a command under ``timeout -k`` (SIGTERM at the limit, SIGKILL after the grace period)."""
+    wrapped = ["timeout", "-k", str(KILL_AFTER_S), str(RUN_LIMIT_S), *command]
+    with open(log, "w") as out:
+        result = subprocess.run(
+            wrapped,
+            check=False,
+            cwd=cwd,
+            stdout=out,
+            stderr=subprocess.STDOUT,
+            text=True,
+            timeout=RUN_LIMIT_S + KILL_AFTER_S + 30,
+        )
+    if result.returncode == 124:
+        pytest.fail(f"{command[0]} hit the {RUN_LIMIT_S} s limit; log: {log}")
+    return result
+
+
+def tail(path: Path, lines: int = 60) -> str:
+    return "\n".join(path.read_text(errors="replace").splitlines()[-lines:])
+
+
+def prepare_workdir(path: Path) -> Path:
+    """A working directory with a copy of config/ and the demo inputs reachable as resources/."""
+    path.mkdir(parents=True)
+    shutil.copytree(REPO / "config", path / "config")
+    (path / "resources").symlink_to(REPO / "resources", target_is_directory=True)
+    return path
+
+
+def merged_table(workdir: Path) -> pd.DataFrame:
+    """The workflow's merged property table (the only CSV under results/ named like it)."""
+    candidates = sorted(workdir.glob("results/**/*.csv"))
+    merged = [p for p in candidates if "merged" in p.name or p.parent.name == "results"]
+    assert merged, f"no merged table under {workdir / 'results'}; found {candidates}"
+    return pd.read_csv(merged[0], keep_default_na=False)
+
+
+def test_batch_job_sees_this_python(slurm_cluster, tmp_path):
+    """A batch job runs and imports qcorr from this environment (what the job step needs)."""
+    out = tmp_path / "job.out"
+    result = subprocess.run(
+        [
+            "timeout", "-k", "10", "120",
+            "sbatch", "--wait", "--quiet", f"--output={out}", "--time=2", "--mem=200",
+            f"--wrap={shutil.which('python') or 'python3'} -c 'import qcorr; print(qcorr.__version__)'",
+        ],
+        check=False,
+        capture_output=True,
+        text=True,
+        timeout=150,
+    )  # fmt: skip
+    assert result.returncode == 0, f"sbatch --wait failed: {result.stderr.strip()}"
+    import qcorr
+
+    assert out.read_text().strip() == qcorr.__version__
+
+
+@pytest.mark.slow
+def test_demo_workflow_on_slurm_equals_local_run(slurm_cluster, tmp_path):
+    """The demo through the SLURM executor gives the same merged table as a local run."""
+    if not SNAKEFILE.exists():
+        pytest.fail(f"{SNAKEFILE} is missing")
+    cores = str(min(2, os.cpu_count() or 1))
+    common = ["snakemake", "--snakefile", str(SNAKEFILE), "--show-failed-logs", "--printshellcmds"]
+
+    local_dir = prepare_workdir(tmp_path / "local")
+    local_log = tmp_path / "local.log"
+    local = run_limited(
+        [*common, "--directory", str(local_dir), "--cores", cores], local_dir, local_log
+    )
+    assert local.returncode == 0, f"local run failed:\n{tail(local_log)}"
+
+    cluster_dir = prepare_workdir(tmp_path / "cluster")
+    cluster_log = tmp_path / "cluster.log"
+    prefix = f"qcorrtest{uuid.uuid4().hex[:8]}"
+    try:
+        cluster = run_limited(
+            [
+                *common,
+                "--directory", str(cluster_dir),
+                "--profile", str(PROFILE_DIR),
+                "--slurm-jobname-prefix", prefix,
+                "--max-threads", cores,  # requests above the node's CPUs would be refused
+            ],
+            cluster_dir,
+            cluster_log,
+        )  # fmt: skip
+    finally:
+        cancel_jobs(prefix)
+    assert cluster.returncode == 0, f"SLURM run failed:\n{tail(cluster_log)}"
+
+    jobs = our_jobs(prefix)
+    assert jobs, (
+        f"no SLURM job named {prefix}* was seen; did the run use the cluster?\n{tail(cluster_log)}"
+    )
+    not_completed = [job for job in jobs if job[1] != "COMPLETED"]
+    assert not not_completed, f"SLURM jobs not completed: {not_completed}"
+    assert "SLURM run ID" in cluster_log.read_text(), "the run did not use the SLURM executor"
+
+    local_table = merged_table(local_dir)
+    cluster_table = merged_table(cluster_dir)
+    assert len(local_table) > 0
+    # Same code, same inputs, same settings: the two runs must agree to rounding.  Numbers
+    # are compared at 1e-12 relative (the CSV holds repr-exact floats); text cells exactly.
+    pd.testing.assert_frame_equal(
+        cluster_table, local_table, check_exact=False, rtol=1e-12, atol=0.0
+    )
