@@ -211,16 +211,78 @@ def open_trajectory(
                 kwargs["format"] = fmt
             universe = mda.Universe(str(top), *[str(t) for t in trajs], **kwargs)
     except Exception as err:  # MDAnalysis raises many types for unreadable input
-        raise TrajectoryError(
+        message = (
             f"cannot read '{top}' with {', '.join(map(str, trajs))} ({_first_line(err)}); check "
             "that the files are complete and that --topology-format/--trajectory-format are right"
-        ) from err
+        )
+        _release_quietly(err)
+        raise TrajectoryError(message) from None
     opened = OpenedTrajectory(universe=universe, files=[top, *trajs], is_lammps_dump=is_dump)
+    check_complete(opened)
     if is_dump:
         unit_s = LAMMPS_UNIT_STYLES[lammps_units]
         opened.lammps_time_factor = unit_s / picosecond_s  # step x dt[unit] -> ps
         opened.lammps_velocity_factor = picosecond_s / unit_s  # Å/unit -> Å/ps
     return opened
+
+
+def _release_quietly(err: BaseException) -> None:
+    """Free half-built MDAnalysis readers held by *err*'s traceback without their ``__del__`` noise."""
+    import gc
+    import sys
+
+    hook = sys.unraisablehook
+    sys.unraisablehook = lambda _unraisable: None
+    try:
+        err.__traceback__ = None
+        err.__context__ = None
+        gc.collect()
+    finally:
+        sys.unraisablehook = hook
+
+
+def check_complete(opened: OpenedTrajectory) -> None:
+    """Detect a GROMACS XDR file (TRR/XTC) that ends inside a frame (truncated copy or crash).
+
+    MDAnalysis indexes XDR files by scanning frame headers and silently ignores a partial
+    last frame; here the end of the last complete frame is compared with the file size.
+
+    Raises
+    ------
+    TrajectoryError
+        Naming the file, its last complete frame and the bytes left over.
+    """
+    trajectory = opened.universe.trajectory
+    readers = getattr(trajectory, "readers", None) or [trajectory]
+    for reader in readers:
+        offsets = getattr(reader, "_offsets", None)
+        if type(reader).__name__ == "DumpReader" and offsets and not str(reader.filename).endswith((".gz", ".bz2")):
+            # MDAnalysis drops a partial last frame of a LAMMPS dump; look past the last full one
+            with open(reader.filename, "rb") as fh:
+                fh.seek(offsets[-1])
+                for _ in range(reader.n_atoms + 9):  # 9 header lines per frame (LAMMPS "dump")
+                    fh.readline()
+                rest = fh.read(1 << 16).strip()
+            if rest:
+                raise TrajectoryError(
+                    f"'{reader.filename}' ends with an incomplete frame after frame "
+                    f"{reader.n_frames - 1}; the dump is truncated: copy it again, or keep only "
+                    "its complete frames"
+                )
+            continue
+        xdr = getattr(reader, "_xdr", None)
+        if xdr is None or not hasattr(xdr, "_bytes_tell"):
+            continue
+        reader[reader.n_frames - 1]
+        end = int(xdr._bytes_tell())
+        size = os.path.getsize(reader.filename)
+        reader[0]
+        if end < size:
+            raise TrajectoryError(
+                f"'{reader.filename}' ends with an incomplete frame after frame {reader.n_frames - 1} "
+                f"({size - end} bytes left over); the file is truncated or corrupt: copy it again, "
+                f"or trim it to the complete frames (e.g. gmx trjconv -e)"
+            )
 
 
 def describe_files(paths: Sequence[str | os.PathLike[str]]) -> list[dict[str, object]]:
@@ -615,7 +677,7 @@ def _check_one_interval(opened, window, index, interval, reference, time_ps) -> 
     if not abs(interval - reference) <= tol:
         raise SamplingError(
             f"frame {window.frame(index)} of '{opened.files[1]}' (t = {time_ps:g} ps) follows the "
-            f"previous frame by {interval:g} ps instead of the regular {reference:g} ps (missing, "
+            f"previous frame by {interval:.4g} ps instead of the regular {reference:.4g} ps (missing, "
             "repeated or unevenly spaced frames); choose a window of evenly spaced frames with "
             "--start/--stop/--step"
         )
@@ -718,7 +780,8 @@ def stream_velocities(
     previous_time = None
     previous_positions = None
     n_read = stop_sample - first_sample + extra
-    for k, ts in enumerate(progress(frames, total=n_read, desc="frames", mode=progress_mode)):
+    for k, ts in enumerate(progress(_guarded(frames, opened, window, first_sample), total=n_read,
+                                    desc="frames", mode=progress_mode)):
         sample = first_sample + k
         frame_no = window.frame(sample)
         time_ps = float(ts.time) * factor_t
@@ -768,6 +831,27 @@ def stream_velocities(
             if dims is not None and np.all(np.asarray(dims[:3]) > 0):
                 statistics.box_volume_sum_A3 += _box_volume(dims)
         yield v
+
+
+def _guarded(frames, opened: OpenedTrajectory, window: FrameWindow, first_sample: int):
+    """Iterate *frames*, turning a reader failure into a TrajectoryError naming the frame."""
+    iterator = iter(frames)
+    k = 0
+    while True:
+        try:
+            ts = next(iterator)
+        except StopIteration:
+            return
+        except Exception as err:
+            message = (
+                f"cannot read frame {window.frame(first_sample + k)} of '{opened.files[1]}' "
+                f"({_first_line(err)}); the file is truncated or corrupt there: use --stop to "
+                "end the window before it, or repair the file"
+            )
+            _release_quietly(err)
+            raise TrajectoryError(message) from None
+        yield ts
+        k += 1
 
 
 def _box_volume(dimensions) -> float:
