@@ -614,8 +614,11 @@ def _msd_rows(
     q_s, c_s = mean_square_displacement(x, group.vdos_segments, temperature_K, group.group_mass_g_mol)
     q, c = float(q), float(c)
     note = "mass-weighted mean over the group's atoms of <|u|^2> (= 3 <u_x^2>)"
+    ratio_note = "quantum / classical mean-square displacement"
     if not math.isclose(temperature_K, spectrum_temperature_K, rel_tol=1e-12):
-        note += f"; harmonic extrapolation of the spectrum measured at {spectrum_temperature_K:g} K"
+        scan = f"; harmonic extrapolation of the spectrum measured at {spectrum_temperature_K:g} K"
+        note += scan
+        ratio_note += scan
     return [
         TableRow(
             property="mean_square_displacement", unit="angstrom^2", classical=c, quantum=q,
@@ -629,7 +632,7 @@ def _msd_rows(
             correction=q / c - 1.0, classical_se=0.0,
             quantum_se=float(segment_standard_error(q_s / c_s, k_eff)),
             correction_se=float(segment_standard_error(q_s / c_s, k_eff)),
-            classical_source="harmonic_model", note="quantum / classical mean-square displacement",
+            classical_source="harmonic_model", note=ratio_note,
             **base,
         ),
     ]

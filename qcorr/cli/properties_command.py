@@ -1,0 +1,178 @@
+"""``qcorr properties``: harmonic quantum corrections and properties from a spectrum file.
+
+Parsing and dispatch only; the physics is in :mod:`qcorr.harmonic`, the table
+in :mod:`qcorr.table`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import warnings
+from pathlib import Path
+
+from qcorr import harmonic, table
+from qcorr.errors import ConfigError, QcorrWarning
+from qcorr.spectrum_file import read_spectrum
+from qcorr.weights import PROPERTIES, get_property
+
+NAME = "properties"
+HELP = "harmonic quantum corrections (heat capacity, ZPE, energy, entropy, free energy) from a spectrum"
+DESCRIPTION = (
+    "Evaluate the spectrum of every atom group with quantum and classical harmonic weighting "
+    "functions (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, 2375 (1983)): corrections, "
+    "zero-point energy, absolute harmonic values for solids, mean-square displacement, with "
+    "standard errors from the per-segment spectra. Writes a CSV table and a JSON sidecar with "
+    "provenance. Harmonic approximation: results support, not replace, validated practice."
+)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("spectrum", metavar="SPECTRUM.nc", help="spectrum file from 'qcorr spectrum'")
+    parser.add_argument("--output", required=True, metavar="TABLE.csv",
+                        help="table to write (CSV); the sidecar TABLE.json is written beside it")
+    parser.add_argument("--system", metavar="ID", default=None,
+                        help="system identifier for the table (default: the spectrum file's name "
+                             "without extension)")
+    parser.add_argument("--temperatures", metavar="K", type=float, nargs="+", default=None,
+                        help="temperatures in K at which to evaluate the spectrum (default: the "
+                             "spectrum's temperature; others are harmonic extrapolations)")
+    parser.add_argument("--properties", metavar="NAME", nargs="+", default=None,
+                        help=f"properties to report (default: all): {', '.join(PROPERTIES)}")
+    parser.add_argument("--md-value", metavar="GROUP:PROPERTY=VALUE", action="extend", nargs="+",
+                        default=[],
+                        help="classical value from the MD run, per mole of molecules, in J/(mol K) "
+                             "for heat_capacity and entropy, kJ/mol for energies, at the spectrum's "
+                             "temperature; the quantum value is then this plus the correction")
+    parser.add_argument("--frozen-bond-wavenumbers", metavar="GROUP=W1,W2,...", action="extend",
+                        nargs="+", default=[],
+                        help="wavenumbers in cm-1 of the bonds constrained in the MD, per molecule "
+                             "of GROUP; reported on separate rows (method frozen_bond_addon)")
+    parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=float,
+                        default=harmonic.DEFAULT_ZERO_FREQUENCY_THRESHOLD,
+                        help="a group diffuses when S(0) exceeds this fraction of dof/<wavenumber> "
+                             "(and 3 standard errors); its absolute entropy and free energy are refused")
+    parser.add_argument("--quiet", action="store_true", help="do not print the table")
+
+
+def parse_md_values(items: list[str]) -> dict[tuple[str, str], float]:
+    """``GROUP:PROPERTY=VALUE`` strings -> ``{(group, property): value}``."""
+    out: dict[tuple[str, str], float] = {}
+    for item in items:
+        head, sep, value_text = item.partition("=")
+        group, colon, prop = head.partition(":")
+        if not sep or not colon or not group or not prop:
+            raise ConfigError(
+                f"--md-value '{item}': expected GROUP:PROPERTY=VALUE, e.g. total:heat_capacity=74.5"
+            )
+        get_property(prop, "--md-value")
+        try:
+            value = float(value_text)
+        except ValueError:
+            raise ConfigError(f"--md-value '{item}': '{value_text}' is not a number") from None
+        if not math.isfinite(value):
+            raise ConfigError(f"--md-value '{item}': the value must be finite")
+        if (group, prop) in out:
+            raise ConfigError(f"--md-value: {group}:{prop} given twice")
+        out[(group, prop)] = value
+    return out
+
+
+def parse_frozen_bonds(items: list[str]) -> dict[str, list[float]]:
+    """``GROUP=W1,W2,...`` strings -> ``{group: [wavenumber cm^-1, ...]}``."""
+    out: dict[str, list[float]] = {}
+    for item in items:
+        group, sep, values = item.partition("=")
+        if not sep or not group or not values:
+            raise ConfigError(
+                f"--frozen-bond-wavenumbers '{item}': expected GROUP=W1,W2,... in cm-1, "
+                "e.g. water=3657,3756"
+            )
+        try:
+            wns = [float(v) for v in values.split(",")]
+        except ValueError:
+            raise ConfigError(
+                f"--frozen-bond-wavenumbers '{item}': the wavenumbers must be numbers in cm-1"
+            ) from None
+        if not all(math.isfinite(w) and w > 0 for w in wns):
+            raise ConfigError(
+                f"--frozen-bond-wavenumbers '{item}': wavenumbers must be positive (cm-1)"
+            )
+        out.setdefault(group, []).extend(wns)
+    return out
+
+
+def run(args: argparse.Namespace) -> int:
+    spectrum_path = Path(args.spectrum)
+    output = table.check_output_path(args.output, [spectrum_path])
+    if args.temperatures is not None:
+        for t in args.temperatures:
+            if not (math.isfinite(t) and t > 0):
+                raise ConfigError(f"--temperatures: {t:g} K is not a positive temperature; give values > 0 K")
+    if args.properties is not None:
+        for name in args.properties:
+            get_property(name, "--properties")
+    md_values = parse_md_values(args.md_value)
+    frozen = parse_frozen_bonds(args.frozen_bond_wavenumbers)
+    system = args.system if args.system is not None else spectrum_path.stem
+    if not system.strip():
+        raise ConfigError("--system: give a non-empty identifier")
+
+    ds = read_spectrum(spectrum_path)
+    result = harmonic.harmonic_properties(
+        ds,
+        system=system,
+        path=spectrum_path,
+        temperatures_K=args.temperatures,
+        properties=args.properties,
+        md_values=md_values,
+        frozen_bond_wavenumbers=frozen,
+        zero_frequency_threshold=args.zero_frequency_threshold,
+    )
+    frame = table.rows_to_frame(result.rows)
+    cautions = list(table.HARMONIC_CAUTIONS) + result.cautions
+    spectrum_provenance = {
+        key: ds.attrs[key]
+        for key in ("temperature_K", "qcorr_version", "command_line", "segment_frames",
+                    "segment_length_ps", "segment_overlap", "taper", "resolution_wavenumber",
+                    "nyquist_wavenumber", "velocity_source", "frames_used")
+        if key in ds.attrs
+    }
+    for key in ("input_files", "diagnostics"):
+        try:
+            spectrum_provenance[key] = json.loads(ds.attrs[key])
+        except (KeyError, TypeError, ValueError):
+            spectrum_provenance[key] = ds.attrs.get(key)
+    provenance = {
+        "command_line": getattr(args, "command_line", ""),
+        "method": "harmonic weighting functions (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, "
+                  "2375 (1983))",
+        "input_spectrum": table.file_record(spectrum_path),
+        "spectrum_provenance": spectrum_provenance,
+        "options": {
+            "system": system,
+            "temperatures_K": args.temperatures or [float(ds.attrs["temperature_K"])],
+            "properties": args.properties or list(PROPERTIES),
+            "md_values": [{"group": g, "property": p, "value": v} for (g, p), v in md_values.items()],
+            "frozen_bond_wavenumbers_cm": frozen,
+            "zero_frequency_threshold": args.zero_frequency_threshold,
+        },
+        "md_value_basis": "per mole of molecules, J/(mol K) or kJ/mol, at the spectrum's temperature",
+        "standard_errors": "per-segment spectra (block averaging); s / sqrt(K_eff) with Welch's "
+                           "(IEEE Trans. Audio Electroacoust. 15, 70 (1967)) effective number of "
+                           "independent overlapping segments",
+        "groups": result.groups,
+        "cautions": cautions,
+    }
+    table.write_table(frame, output, provenance)
+    for caution in result.cautions:
+        warnings.warn(caution, QcorrWarning, stacklevel=1)
+    if not args.quiet:
+        print(table.format_table(frame, "per_mole_molecules"))
+        print()
+        print("Values per mole of molecules (all bases in the CSV). Cautions:")
+        for caution in cautions:
+            print(f"- {caution}")
+        print(f"wrote {output} and {table.sidecar_path(output)}")
+    return 0
