@@ -590,3 +590,101 @@ def vibrational_component(
         "vibration", x, s, np.zeros_like(s), float(molecule_count), temperature_K, dof,
         0.0, 0.0, 0.0, 0.0, 0.0,
     )
+
+
+# --------------------------------------------------------------------------
+# one molecule type: translation + rotation + vibration
+# --------------------------------------------------------------------------
+
+#: per-molecule totals of :class:`GroupResult` (units of k, or kT for energies)
+TOTALS = (
+    "entropy", "entropy_classical", "heat_capacity", "heat_capacity_classical",
+    "energy_minus_classical", "zero_point_energy",
+)
+
+
+@dataclass(frozen=True)
+class GroupResult:
+    """2PT result for one molecule type (per molecule; k or kT units).
+
+    ``components`` maps ``translation`` / ``rotation`` / ``vibration`` to their
+    :class:`ComponentResult` (absent parts are left out); the totals are sums.
+    """
+
+    components: dict[str, ComponentResult]
+    entropy: float
+    entropy_classical: float
+    heat_capacity: float
+    heat_capacity_classical: float
+    energy_minus_classical: float
+    zero_point_energy: float
+
+
+def two_phase_group(
+    wavenumber_cm: ArrayLike,
+    parts: dict[str, ArrayLike],
+    *,
+    molecule_count: float,
+    temperature_K: float,
+    mass_u: float,
+    volume_A3: float,
+    principal_moments_u_A2: ArrayLike | None = None,
+    symmetry_number: int = 1,
+    hard_sphere_form: str = "published",
+    gas_volume: str = "gas-particles",
+    rotational_fluidicity: str = "from-rotation",
+    translation_zero_frequency_cm: float | None = None,
+) -> GroupResult:
+    """2PT totals for N molecules of one kind from their component DoS.
+
+    Parameters
+    ----------
+    wavenumber_cm : array (n,)
+    parts : dict
+        ``"translation"`` (required), optionally ``"rotation"`` and
+        ``"vibration"``: DoS of all N molecules, cm.
+    molecule_count, temperature_K, mass_u, volume_A3 : float
+        N, T (K), molecular mass (u), mean volume (Å³).
+    principal_moments_u_A2 : array (3,), optional
+        Needed with a rotational part.
+    symmetry_number : int
+    hard_sphere_form, gas_volume : str
+        See :func:`hard_sphere_entropy`.
+    rotational_fluidicity : {"from-rotation", "same-as-translation"}
+        Rotational f from the rotational S(0) through the same Δ → f equation
+        (default), or equal to the translational f.
+    translation_zero_frequency_cm : float, optional
+        Translational S̃(0) to use (e.g. from an MSD diffusion coefficient).
+
+    Returns
+    -------
+    GroupResult
+    """
+    if rotational_fluidicity not in ROTATIONAL_FLUIDICITY_CHOICES:
+        raise ConfigError(
+            f"rotational fluidicity {rotational_fluidicity!r} is not one of "
+            f"{ROTATIONAL_FLUIDICITY_CHOICES}"
+        )
+    if "translation" not in parts:
+        raise ConfigError("2PT needs a translational density of states")
+    common = dict(molecule_count=molecule_count, temperature_K=temperature_K, mass_u=mass_u,
+                  volume_A3=volume_A3)
+    comps: dict[str, ComponentResult] = {}
+    comps["translation"] = two_phase_component(
+        "translation", wavenumber_cm, parts["translation"], **common,
+        zero_frequency_dos_cm=translation_zero_frequency_cm,
+        hard_sphere_form=hard_sphere_form, gas_volume=gas_volume,
+    )
+    if parts.get("rotation") is not None:
+        f_rot = comps["translation"].fluidicity if rotational_fluidicity == "same-as-translation" else None
+        comps["rotation"] = two_phase_component(
+            "rotation", wavenumber_cm, parts["rotation"], **common, fluidicity_value=f_rot,
+            principal_moments_u_A2=principal_moments_u_A2, symmetry_number=symmetry_number,
+        )
+    if parts.get("vibration") is not None:
+        comps["vibration"] = vibrational_component(
+            wavenumber_cm, parts["vibration"], molecule_count=molecule_count,
+            temperature_K=temperature_K,
+        )
+    totals = {name: float(sum(getattr(c, name) for c in comps.values())) for name in TOTALS}
+    return GroupResult(components=comps, **totals)
