@@ -257,3 +257,55 @@ def test_merge_mismatched_columns(debye_file, tmp_path, capsys) -> None:
     bad.with_suffix(".json").write_text(a.with_suffix(".json").read_text())
     out = tmp_path / "all.csv"
     _expect_error(["merge", str(a), str(bad), "--output", str(out)], out, capsys, "bad.csv", "columns")
+
+
+def test_end_to_end_from_trajectory(oscillator_files, tmp_path, run_qcorr) -> None:
+    """Trajectory -> 'qcorr spectrum' -> 'qcorr properties' on the antiphase-diatomic scenario.
+
+    Sinusoidal velocities exactly on DFT bins m of a periodic-Hann segment put
+    their power on bins m and m +- 1 in the ratio 4 : 1 : 1 (Hann window
+    transform: amplitudes 1/2, -1/4, -1/4; F. J. Harris, Proc. IEEE 66, 51 (1978)).
+    The 21 dof (3N - 3, N = 8) are shared equally by the 4 frequencies, so every
+    property is (21/4) sum_i [4 W(u_m) + W(u_m-1) + W(u_m+1)] / 6 in units of k or
+    kT, computed here with the textbook oscillator formulas (not qcorr.weights).
+    ZPE, linear in frequency, sees no leakage at all: (21/4) sum_i h nu_i / 2.
+    """
+    from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
+
+    spectrum = tmp_path / "dimers.nc"
+    code, _, err = run_qcorr(
+        "spectrum", "--topology", oscillator_files["topology"], "--trajectory", oscillator_files["trr"],
+        "--temperature", OSC_TEMPERATURE_K, "--segment-ps", OSC_SEGMENT_PS, "--mass",
+        f"O={OSC_MASS_U}", "--progress", "never", "--output", spectrum,
+    )
+    assert code == 0, err
+    out = tmp_path / "dimers.csv"
+    code, _, err = run_qcorr("properties", spectrum, "--output", out, "--quiet")
+    assert code == 0, err
+    frame = pd.read_csv(out, keep_default_na=False, na_values=[""])
+    harmonic_rows = frame[(frame.method == "harmonic") & (frame.basis == "per_system")]
+
+    temperature = OSC_TEMPERATURE_K
+    resolution_hz = 1.0 / (OSC_SEGMENT_PS * sc.pico)
+
+    def u_of(bin_index):
+        return sc.h * bin_index * resolution_hz / (sc.k * temperature)
+
+    formulas = {  # per mode, units of k (Cv, S) or kT (E, A): McQuarrie, Statistical Mechanics, ch. 8
+        "heat_capacity": lambda u: u * u * math.exp(u) / math.expm1(u) ** 2,
+        "energy": lambda u: u / 2 + u / math.expm1(u),
+        "entropy": lambda u: u / math.expm1(u) - math.log(-math.expm1(-u)),
+        "helmholtz_free_energy": lambda u: u / 2 + math.log(-math.expm1(-u)),
+        "zero_point_energy": lambda u: u / 2,
+    }
+    for name, weight in formulas.items():
+        modes = sum((4 * weight(u_of(m)) + weight(u_of(m - 1)) + weight(u_of(m + 1))) / 6
+                    for m in OSC_BINS) * 21 / 4
+        per_k = name in ("heat_capacity", "entropy")  # J/K; the energies are in kJ
+        scale = sc.k if per_k else sc.k * temperature / 1000
+        row = harmonic_rows[harmonic_rows.property == name].iloc[0]
+        assert row.quantum == pytest.approx(modes * scale, rel=1e-9), name
+        assert row.quantum_se == pytest.approx(0.0, abs=1e-9 * abs(row.quantum))  # identical segments
+    zpe = harmonic_rows[harmonic_rows.property == "zero_point_energy"].quantum.iloc[0]
+    exact = 21 / 4 * sum(sc.h * m * resolution_hz / 2 for m in OSC_BINS) / 1000
+    assert zpe == pytest.approx(exact, rel=1e-10)
