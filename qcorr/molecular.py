@@ -424,3 +424,173 @@ class CentreOfMassDisplacement:
                 slope = np.polyfit(lag[use], msd[g, use], 1)[0]  # Å²/ps
                 out[g] = slope / 6.0 * C.angstrom_m**2 / C.picosecond_s
         return out
+
+
+# --------------------------------------------------------------------------
+# one streaming pass for ``qcorr spectrum --molecular``
+# --------------------------------------------------------------------------
+
+#: spectrum-file variables added by :class:`MolecularPass` (all along ``group``)
+MOLECULAR_VARIABLES = (
+    "vdos_translation", "vdos_rotation", "vdos_vibration",
+    "vdos_translation_segments", "vdos_rotation_segments", "vdos_vibration_segments",
+    "whole_molecule_count", "molecule_kind_count", "molecule_mass", "principal_moments",
+    "rotational_dof_per_molecule", "vibrational_dof_per_molecule",
+    "translational_kinetic_temperature", "rotational_kinetic_temperature",
+    "vibration_difference_integral", "self_diffusion_msd",
+)
+
+
+class MolecularPass:
+    """Everything ``qcorr spectrum --molecular`` adds, fed frame by frame.
+
+    Parameters
+    ----------
+    universe : MDAnalysis.Universe
+        Positioned anywhere; the first frame of the window is read to build the layout.
+    channel_indices, masses : arrays (n_channels,)
+        Atom indices and masses (u) of the spectrum channels.
+    group_members : bool array (n_groups, n_channels)
+    settings : qcorr.spectrum.SpectrumSettings
+    first_frame : int
+        Trajectory frame used to detect linear molecules.
+    definition : {"residue", "fragment"}
+    first_segment, stop_segment, workers :
+        As for :class:`qcorr.spectrum.SegmentAccumulator`.
+    """
+
+    def __init__(self, universe, channel_indices, masses, group_members, settings, *,
+                 first_frame: int = 0, definition: str = "residue", first_segment: int = 0,
+                 stop_segment: int | None = None, workers: int = 1,
+                 linear_ratio: float = DEFAULT_LINEAR_RATIO) -> None:
+        from qcorr.spectrum import SegmentAccumulator
+
+        self.channel_indices = np.asarray(channel_indices, dtype=np.int64)
+        ids = molecule_ids_from_universe(universe, self.channel_indices, definition)
+        ts = universe.trajectory[first_frame]
+        self.layout = build_layout(masses, ids, group_members,
+                                   np.asarray(ts.positions[self.channel_indices], dtype=np.float64),
+                                   ts.dimensions, linear_ratio)
+        self.definition = definition
+        self.decomposer = MolecularDecomposer(self.layout)
+        self.accumulator = SegmentAccumulator(
+            settings, self.decomposer.channel_weights(), self.decomposer.channel_groups(), 3,
+            workers, first_segment=first_segment, stop_segment=stop_segment)
+        self.msd = CentreOfMassDisplacement(self.layout.group_molecules, settings.timestep_ps,
+                                            settings.segment_frames)
+
+    def add_frame(self, velocities_A_per_ps, ts, *, finite_difference_timestep_ps: float | None = None):
+        """Add one velocity sample with the trajectory's current time step object.
+
+        For forward-difference velocities (x_{j+1} − x_j)/Δt the current frame is
+        j+1; the positions used are the midpoint x_{j+1} − v Δt/2.
+        """
+        v = np.asarray(velocities_A_per_ps, dtype=np.float64)
+        x = np.asarray(ts.positions[self.channel_indices], dtype=np.float64)
+        if finite_difference_timestep_ps is not None:
+            x = x - 0.5 * finite_difference_timestep_ps * v
+        values = self.decomposer.frame(x, v, ts.dimensions)
+        self.accumulator.add_frame(values)
+        self.msd.add_frame(self.decomposer.unwrapped_com)
+
+    def variables(self, ds, *, finite_difference_timestep_ps: float | None = None) -> dict:
+        """Data variables to merge into the spectrum dataset *ds* (same groups and segments).
+
+        The translational and rotational spectra get each group's normalisation
+        factor ``degrees_of_freedom / raw_integral`` of its atomic spectrum, so that
+        ``vdos_vibration = vdos − vdos_translation − vdos_rotation`` is consistent.
+        Groups that are not made of whole molecules get NaN.
+        """
+        from qcorr.spectrum_file import raw_spectra
+
+        lay = self.layout
+        powers = self.accumulator.result()
+        temperature = float(ds.attrs["temperature_K"])
+        raw = raw_spectra(powers.power, powers.frequency_Hz, temperature,
+                          finite_difference_timestep_ps=finite_difference_timestep_ps)
+        n_groups = lay.group_molecules.shape[0]
+        factor = (ds["degrees_of_freedom"] / ds["raw_integral"]).values
+        trn_seg = raw[:n_groups] * factor[:, None, None]
+        rot_seg = raw[n_groups:] * factor[:, None, None]
+        atoms_seg = ds["vdos_segments"].values
+        vib_seg = atoms_seg - trn_seg - rot_seg
+        wn = ds["wavenumber"].values
+        counts = lay.group_molecules.sum(axis=1)
+        moments = self.decomposer.mean_moments()
+        kinds = np.c_[lay.atom_count, np.round(lay.molecule_mass, 3), lay.rotational_dof]
+        kind_count = np.zeros(n_groups, dtype=np.int64)
+        mass = np.full(n_groups, np.nan)
+        group_moments = np.full((n_groups, 3), np.nan)
+        rot_dof = np.full(n_groups, np.nan)
+        vib_dof = np.full(n_groups, np.nan)
+        constraints = ds["constraint_count"].values
+        for g in range(n_groups):
+            sel = lay.group_molecules[g]
+            if not sel.any():
+                continue
+            kind_count[g] = len(np.unique(kinds[sel], axis=0))
+            mass[g] = lay.molecule_mass[sel].mean()
+            group_moments[g] = moments[sel].mean(axis=0)
+            rot_dof[g] = lay.rotational_dof[sel].mean()
+            vib_dof[g] = (3 * lay.atom_count[sel].sum() - 3 * sel.sum()
+                          - lay.rotational_dof[sel].sum() - constraints[g]) / sel.sum()
+        usable = lay.group_whole & (counts > 0)
+        residual = np.trapezoid(vib_seg.mean(axis=1), wn, axis=-1)
+        rigid = usable & np.isclose(vib_dof, 0.0)
+        vib_seg[rigid] = 0.0  # rigid molecules: no vibrational part (difference kept as a check)
+        for arr in (trn_seg, rot_seg, vib_seg):
+            arr[~usable] = np.nan
+        raw_int = np.trapezoid(raw.mean(axis=1), wn, axis=-1)
+        t_trn = temperature * raw_int[:n_groups] / np.where(usable, 3.0 * counts, np.nan)
+        t_rot = temperature * raw_int[n_groups:] / np.where(usable & (rot_dof > 0), rot_dof * counts, np.nan)
+        d_msd = self.msd.self_diffusion_m2_per_s()
+        d_msd[~usable] = np.nan
+        note = (f"molecules = {self.definition}s; vibration = difference DoS (atoms - translation - "
+                "rotation); NaN for groups not made of whole molecules")
+        g2 = ("group", "wavenumber")
+        g3 = ("group", "segment", "wavenumber")
+        out = {
+            "vdos_translation": (g2, trn_seg.mean(axis=1), {"units": "cm", "long_name": "centre-of-mass (translational) density of states per unit wavenumber; integral = 3 per molecule", "comment": note}),
+            "vdos_rotation": (g2, rot_seg.mean(axis=1), {"units": "cm", "long_name": "rotational density of states (principal-axis angular velocities weighted by the moments); integral = 3 (2 linear) per molecule", "comment": note}),
+            "vdos_vibration": (g2, vib_seg.mean(axis=1), {"units": "cm", "long_name": "intramolecular vibrational density of states (vdos - translation - rotation; zero for rigid molecules)", "comment": note}),
+            "vdos_translation_segments": (g3, trn_seg, {"units": "cm", "long_name": "translational density of states of each segment"}),
+            "vdos_rotation_segments": (g3, rot_seg, {"units": "cm", "long_name": "rotational density of states of each segment"}),
+            "vdos_vibration_segments": (g3, vib_seg, {"units": "cm", "long_name": "vibrational density of states of each segment"}),
+            "whole_molecule_count": (("group",), np.where(usable, counts, 0).astype(np.int64), {"units": "1", "long_name": "molecules whose atoms all belong to the group (0: group not made of whole molecules)"}),
+            "molecule_kind_count": (("group",), kind_count, {"units": "1", "long_name": "kinds of molecule (atom count, mass, linearity) in the group"}),
+            "molecule_mass": (("group",), mass, {"units": "g mol-1", "long_name": "mean mass of one molecule of the group"}),
+            "principal_moments": (("group", "principal_axis"), group_moments, {"units": "g mol-1 Angstrom2", "long_name": "time- and molecule-mean principal moments of inertia, ascending"}),
+            "rotational_dof_per_molecule": (("group",), rot_dof, {"units": "1", "long_name": "rotational degrees of freedom per molecule (0 atom, 2 linear, 3 nonlinear)"}),
+            "vibrational_dof_per_molecule": (("group",), vib_dof, {"units": "1", "long_name": "3 n_atoms - 3 - rotational dof - constraints, per molecule"}),
+            "translational_kinetic_temperature": (("group",), t_trn, {"units": "K", "long_name": "sum(M <V^2>)/(3 N_molecules k)"}),
+            "rotational_kinetic_temperature": (("group",), t_rot, {"units": "K", "long_name": "sum(<w.I.w>)/(rotational dof k)"}),
+            "vibration_difference_integral": (("group",), residual, {"units": "1", "long_name": "integral of vdos - translation - rotation per group (check; ~0 for rigid molecules)"}),
+            "self_diffusion_msd": (("group",), d_msd, {"units": "m2 s-1", "long_name": "self-diffusion coefficient of the molecules' centres of mass from the mean-square displacement (Einstein relation, fit over lags 1/4..1 of a segment)"}),
+        }
+        return out
+
+
+def pass_for_spectrum_command(args, opened, channels, groups, settings, window, first_segment,
+                              stop_segment, block_count: int) -> MolecularPass | None:
+    """The :class:`MolecularPass` for ``qcorr spectrum --molecular`` (None without the option).
+
+    Raises
+    ------
+    ConfigError
+        ``--molecular`` with ``--block`` (the blocks' molecular spectra cannot be
+        combined yet), or an unknown ``--molecules`` value.
+    """
+    if not getattr(args, "molecular", False):
+        return None
+    if block_count > 1:
+        raise ConfigError(
+            "--molecular cannot be combined with --block yet (qcorr combine does not join the "
+            "molecular spectra); run the whole frame window in one job"
+        )
+    definition = getattr(args, "molecules", "residue") or "residue"
+    return MolecularPass(
+        opened.universe, channels.indices, channels.masses,
+        np.array([g.members for g in groups], dtype=bool), settings,
+        first_frame=window.start, definition=definition, first_segment=first_segment,
+        stop_segment=stop_segment, workers=args.threads,
+    )

@@ -84,8 +84,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "without it only zero-mass atoms named like virtual sites (M, MW, EPW, "
                              "EP1, LP1, VS, DUM...) are excluded and other zero masses are an error")
     system.add_argument("--molecular", action="store_true",
-                        help="add translation/rotation/vibration spectra (input for 2PT) "
-                             "[reserved; not available in this version]")
+                        help="add translation/rotation/vibration spectra per group of whole "
+                             "molecules, principal moments and the MSD self-diffusion "
+                             "(input for 'qcorr liquid', 2PT)")
+    system.add_argument("--molecules", choices=("residue", "fragment"), default="residue",
+                        help="with --molecular: a molecule is a residue, or a bonded fragment")
 
     est = parser.add_argument_group("estimator")
     est.add_argument("--segment-ps", type=float, default=5.0, metavar="PS",
@@ -136,11 +139,6 @@ class ChannelPlan:
 
 def build_channel_plan(args: argparse.Namespace, channels, groups) -> ChannelPlan:
     """Channel list for the estimator (hook for ``--molecular``)."""
-    if args.molecular:
-        raise ConfigError(
-            "--molecular: the translation/rotation/vibration decomposition is not available in "
-            "this version of qcorr; run without --molecular"
-        )
     return ChannelPlan(
         weights=channels.masses,
         group_members=np.array([g.members for g in groups], dtype=bool),
@@ -221,6 +219,11 @@ def run(args: argparse.Namespace) -> int:
         settings, plan.weights, plan.group_members, plan.n_components, args.threads,
         first_segment=first_seg, stop_segment=stop_seg,
     )
+    # --molecular (issue 6): a second estimator over molecular channels, see qcorr.molecular
+    from qcorr.molecular import pass_for_spectrum_command
+    fd_step = window.timestep_ps if positions else None
+    molecular = pass_for_spectrum_command(args, opened, channels, groups, settings, window,
+                                          first_seg, stop_seg, block_count)
     stats = trj.FrameStatistics()
     for velocities in trj.stream_velocities(
         opened, channels, window, first_sample, stop_sample,
@@ -228,6 +231,9 @@ def run(args: argparse.Namespace) -> int:
         statistics=stats, progress_mode=args.progress,
     ):
         accumulator.add_frame(velocities)
+        if molecular is not None:
+            molecular.add_frame(velocities, opened.universe.trajectory.ts,
+                                finite_difference_timestep_ps=fd_step)
     powers = accumulator.result()
 
     raw = raw_spectra(powers.power, powers.frequency_Hz, args.temperature,
@@ -283,6 +289,9 @@ def run(args: argparse.Namespace) -> int:
         segment_first_frame=window.start + powers.segment_first_frame * window.step,
         attrs=attrs,
     )
+    if molecular is not None:
+        ds = ds.assign(molecular.variables(ds, finite_difference_timestep_ps=fd_step))
+        ds.attrs["molecular_decomposition"] = f"molecules = {args.molecules}s (qcorr.molecular)"
     finish(ds, args.output)
     return 0
 
