@@ -553,9 +553,11 @@ def _group_rows(
         }
         md = md_values.get((group.name, prop.name))
         for basis in BASES:
-            conv = lambda v: float(  # noqa: E731
-                to_physical(v, prop, temperature_K, basis, group.molecule_count, group.atom_count)
-            )
+
+            def conv(value, prop=prop, basis=basis):
+                return float(to_physical(value, prop, temperature_K, basis,
+                                         group.molecule_count, group.atom_count))
+
             notes = [scan_note] if scan_note else []
             row = TableRow(
                 system=system, group=group.name, method="harmonic", property=prop.name,
@@ -600,8 +602,8 @@ def _msd_rows(
     group: GroupSpectrum, *, system: str, temperature_K: float, k_eff: float, check: ZeroFrequencyCheck,
     spectrum_temperature_K: float,
 ) -> list[TableRow]:
-    base = dict(system=system, group=group.name, method="harmonic", temperature_K=temperature_K,
-                basis="atom_mean")
+    base = {"system": system, "group": group.name, "method": "harmonic",
+            "temperature_K": temperature_K, "basis": "atom_mean"}
     if check.diffusing:
         note = (f"refused: diffusing group ({check.describe()}); the harmonic mean-square "
                 "displacement needs bound motion")

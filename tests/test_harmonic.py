@@ -27,12 +27,12 @@ import math
 
 import numpy as np
 import pytest
+import spectra
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import constants as sc
 from scipy.integrate import quad
 
-import spectra
 from qcorr import harmonic
 from qcorr.errors import ConfigError, SpectrumFileError
 from qcorr.weights import PROPERTIES
@@ -82,7 +82,7 @@ def test_einstein_solid_exact(ratio: float) -> None:
 def _debye_reference(ratio: float) -> dict[str, float]:
     """Debye (1912) per 3Nk (or 3NkT), by scipy quadrature of the Debye functions."""
     xd = 1.0 / ratio
-    kw = dict(epsabs=0, epsrel=1e-13, limit=200)
+    kw = {"epsabs": 0, "epsrel": 1e-13, "limit": 200}
     d3 = 3 / xd**3 * quad(lambda x: x**3 / math.expm1(x), 0, xd, **kw)[0]
     cv = 3 / xd**3 * quad(lambda x: x**4 * math.exp(x) / math.expm1(x) ** 2, 0, xd, **kw)[0]
     log_term = math.log(-math.expm1(-xd))

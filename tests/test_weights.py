@@ -215,3 +215,11 @@ def test_registry_and_unknown_property_message() -> None:
     assert "--properties" in message and "'enthalpy'" in message
     assert "heat_capacity" in message and "helmholtz_free_energy" in message
     assert "\n" not in message
+
+
+def test_docstring_examples() -> None:
+    """The Examples in qcorr.weights run and print the values checked against mpmath above."""
+    import doctest
+
+    result = doctest.testmod(w)
+    assert result.attempted >= 4 and result.failed == 0
