@@ -788,6 +788,12 @@ def harmonic_properties(
                 "energy and mean-square displacement are refused; use 'qcorr liquid' (2PT). The "
                 "corrections are reported."
             )
+        integral = float(np.trapezoid(g.vdos, g.wavenumber_cm))
+        if abs(integral - g.degrees_of_freedom) > 1e-3 * g.degrees_of_freedom:
+            cautions.append(
+                f"Group '{g.name}': the spectrum integrates to {integral:.6g}, not to its "
+                f"{g.degrees_of_freedom:g} degrees of freedom; values follow the spectrum as stored."
+            )
         if math.isfinite(g.kinetic_temperature_K) and abs(g.kinetic_temperature_K - t0) > 0.02 * t0:
             cautions.append(
                 f"Group '{g.name}': kinetic temperature {g.kinetic_temperature_K:.4g} K differs from "

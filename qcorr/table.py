@@ -308,6 +308,13 @@ def _value_with_error(value: float, error: float) -> str:
     return text
 
 
+def _cell(value: float, error: float, note: str) -> str:
+    text = _value_with_error(value, error)
+    if not text and "refused" in note:
+        return "refused (see CSV note)"
+    return text
+
+
 def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
     """Readable text table of one basis (values with their standard errors).
 
@@ -323,8 +330,12 @@ def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
             "T/K": keep["temperature_K"].map(lambda t: f"{t:g}"),
             "property": keep["property"],
             "unit": keep["unit"],
-            "classical": [_value_with_error(v, e) for v, e in zip(keep["classical"], keep["classical_se"])],
-            "quantum": [_value_with_error(v, e) for v, e in zip(keep["quantum"], keep["quantum_se"])],
+            "classical": [
+                _cell(v, e, n) for v, e, n in zip(keep["classical"], keep["classical_se"], keep["note"])
+            ],
+            "quantum": [
+                _cell(v, e, n) for v, e, n in zip(keep["quantum"], keep["quantum_se"], keep["note"])
+            ],
             "correction": [
                 _value_with_error(v, e) for v, e in zip(keep["correction"], keep["correction_se"])
             ],

@@ -502,3 +502,18 @@ def test_unknown_property_and_group_refused() -> None:
         harmonic.harmonic_properties(ds, system="x", md_values={("water", "energy"): 1.0})
     with pytest.raises(ConfigError, match="--frozen-bond-wavenumbers"):
         harmonic.harmonic_properties(ds, system="x", frozen_bond_wavenumbers={"total": [-5.0]})
+
+
+def test_caution_when_integral_differs_from_dof() -> None:
+    """The contract says integral = dof; a spectrum that breaks it is used as stored, with a caution."""
+    x = np.linspace(0, 1000, 1001)
+    s = spectra.debye_vdos(x, 600.0, 9.0)
+    ds = spectra.spectrum_dataset(
+        x, {"total": spectra.GroupSpec(s, 12.0, atom_count=4, molecule_count=4, group_mass_g_mol=100.0)},
+        temperature_K=300.0,
+    )
+    result = harmonic.harmonic_properties(ds, system="x", include_msd=False)
+    assert any("integrates to 9, not to its 12 degrees of freedom" in c for c in result.cautions)
+    ok = harmonic.harmonic_properties(spectra.debye_solid_dataset(debye_temperature_K=300,
+                                      temperature_K=300, points_below_debye=500), system="y")
+    assert not any("integrates to" in c for c in ok.cautions)

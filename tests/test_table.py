@@ -155,3 +155,10 @@ def test_failure_after_csv_written_leaves_nothing(tmp_path, monkeypatch) -> None
     monkeypatch.undo()
     assert not target.exists() and not table.sidecar_path(target).exists()
     assert list(tmp_path.iterdir()) == []
+
+
+def test_format_table_marks_refused_cells() -> None:
+    frame = table.rows_to_frame(_rows())
+    text = table.format_table(frame)
+    entropy_line = next(line for line in text.splitlines() if "entropy" in line)
+    assert "refused (see CSV note)" in entropy_line and "0.8 ± 0.01" in entropy_line
