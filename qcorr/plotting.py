@@ -361,7 +361,8 @@ def plot_cumulative(
         axes.set_ylabel(f"cumulative correction ({running[names[0]].attrs['units']})")
         axes.legend(fontsize="small")
         _add_frequency_axis(axes)
-    per = basis.replace("_", " ").replace("per system", "per simulated system")
+    per = {"per_mole_molecules": "per mole of molecules", "per_mole_atoms": "per mole of atoms",
+           "per_system": "per simulated system"}[basis]
     figure.suptitle(
         title
         or f"quantum corrections of group {group}, {per}, at {running.attrs['temperature_K']:g} K"
