@@ -62,6 +62,7 @@ References
 from __future__ import annotations
 
 import math
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -91,7 +92,7 @@ TAPERS = ("hann", "none")
 FINITE_DIFFERENCE_SCHEMES = ("forward", "central")
 
 #: bytes of FFT workspace aimed at per chunk of channels (keeps temporaries in cache)
-_CHUNK_BYTES = 1024 * 1024
+_CHUNK_BYTES = 512 * 1024
 
 
 @dataclass(frozen=True)
@@ -313,7 +314,10 @@ class SegmentAccumulator:
     n_components : int
         Components per channel (3 for Cartesian velocities).
     workers : int
-        Threads for :func:`scipy.fft.rfft`.
+        Threads (option ``--threads``).  With 1 everything runs in the caller's thread.
+        With ``N >= 2`` and 50 % overlap, finished half segments are transformed in one
+        background thread (using ``N - 1`` FFT threads) while the caller reads the next
+        frames; the results are identical.  Other overlaps use ``N`` FFT threads.
     first_segment, stop_segment : int
         Only segments ``first_segment .. stop_segment-1`` of the frame window are
         kept (a frame block); frames must be fed from
@@ -335,6 +339,8 @@ class SegmentAccumulator:
         workers: int = 1,
         first_segment: int = 0,
         stop_segment: int | None = None,
+        *,
+        _route: str = "auto",
     ) -> None:
         weights = np.asarray(weights, dtype=np.float64)
         members = np.asarray(group_members)
@@ -373,15 +379,45 @@ class SegmentAccumulator:
         self._rows = rows
         # (group x row) weight matrix: one column per channel component
         self._row_weights = np.repeat(members * weights[None, :], self.n_components, axis=1)
-        # ring buffer of one segment, frame-major: frame f lives in row f % L
-        self.buffer = np.zeros((L, rows))
-        chunk = max(8, _CHUNK_BYTES // (2 * L * 8))
-        self._chunk = min(rows, chunk)
-        # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
-        self.workspace = np.zeros((self._chunk, 2 * L))
-        self._tapered = np.zeros((self._chunk, L // 2 + 1), dtype=np.complex128)
+        half = L // 2
+        if _route not in ("auto", "segment"):
+            raise ConfigError(f"unknown transform route {_route!r}")
+        # With 50 % overlap (L = 2 hop) every half segment is transformed once and reused by
+        # the two segments that contain it; otherwise each segment is transformed whole.
+        self._half_overlap = _route == "auto" and settings.hop_frames == half
+        if self._half_overlap:
+            # frame-major buffer of one half segment (frame f lives in row f % half) and the
+            # L-point transforms of the previous half segment, one array per chunk of rows
+            self.buffer = np.zeros((half, rows))
+            # with two or more threads, the finished half segment is transformed by a
+            # background thread while the caller fills a second buffer (numpy and pocketfft
+            # release the GIL); results are identical to the serial order
+            self._pipelined = self.workers >= 2
+            self._spare = np.zeros((half, rows)) if self._pipelined else None
+            chunk = max(8, _CHUNK_BYTES // (L * 8))
+            self._chunk = min(rows, chunk)
+            self.workspace = np.zeros((self._chunk, L))
+            self._previous: list[NDArray[np.complex128]] = []
+            self._previous_auto: NDArray[np.float64] | None = None
+            self._combined = np.zeros((self._chunk, half + 1), dtype=np.complex128)
+            # e^{-i 2 pi m hop / L} = (-1)^m: phase of the second half in the segment's DFT
+            # (float view: real and imaginary part of each bin share the sign)
+            self._alternating = np.repeat(np.where(np.arange(half + 1) % 2 == 0, 1.0, -1.0), 2)
+        else:
+            # ring buffer of one segment, frame-major: frame f lives in row f % L
+            self.buffer = np.zeros((L, rows))
+            self._pipelined = False
+            chunk = max(8, _CHUNK_BYTES // (2 * L * 8))
+            self._chunk = min(rows, chunk)
+            # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
+            self.workspace = np.zeros((self._chunk, 2 * L))
+            self._even = np.zeros((self._chunk, half + 1), dtype=np.complex128)
+        self._tapered = np.zeros((self._chunk, half + 1), dtype=np.complex128)
         window = taper_window(settings)
         self._window_power = float(np.sum(window * window))
+        self._fft_workers = max(1, self.workers - 1) if self._pipelined else self.workers
+        self._executor: ThreadPoolExecutor | None = None
+        self._pending: Future | None = None
         self._frames_fed = 0
         self._power: list[NDArray[np.float64]] = []
         self._correlation: list[NDArray[np.float64]] = []
@@ -394,7 +430,8 @@ class SegmentAccumulator:
 
     @property
     def segments_done(self) -> int:
-        """Number of segments transformed and kept so far."""
+        """Number of segments transformed and kept so far (waits for a background transform)."""
+        self._wait()
         return len(self._power)
 
     def _segments_wanted(self) -> int | None:
@@ -416,23 +453,142 @@ class SegmentAccumulator:
                 f"frame {self._frames_fed} has values of shape {values.shape}, expected "
                 f"({self.n_channels}, {self.n_components})"
             )
+        L, hop = self.settings.segment_frames, self.settings.hop_frames
         wanted = self._segments_wanted()
-        if wanted is not None and len(self._power) >= wanted:
+        if wanted is not None and self._frames_fed >= (wanted - 1) * hop + L:
             self._frames_fed += 1  # beyond the block: not needed, not stored
             return
-        L, hop = self.settings.segment_frames, self.settings.hop_frames
+        if self._half_overlap:
+            self.buffer[self._frames_fed % hop] = values.reshape(-1)
+            self._frames_fed += 1
+            if self._frames_fed % hop == 0:
+                if self._pipelined:
+                    self._wait()
+                    if self._executor is None:
+                        self._executor = ThreadPoolExecutor(max_workers=1)
+                    full, self.buffer, self._spare = self.buffer, self._spare, self.buffer
+                    self._pending = self._executor.submit(
+                        self._transform_half, full, self._frames_fed
+                    )
+                else:
+                    self._transform_half(self.buffer, self._frames_fed)
+            return
         self.buffer[self._frames_fed % L] = values.reshape(-1)
         self._frames_fed += 1
         start = self._frames_fed - L
         if start >= 0 and start % hop == 0:
             self._transform_segment(start)
 
+    def _add_tapered_power(
+        self, x: NDArray[np.complex128], w: NDArray[np.float64], power: NDArray[np.float64]
+    ) -> None:
+        """``power += w @ |4 Y|^2`` (interleaved re^2, im^2) for the L-point DFT *x* of a segment.
+
+        *x* must be C-contiguous, shape (rows, L/2 + 1).
+
+        ``4 Y[m] = 2 X[m] - X[m-1] - X[m+1]`` is the periodic-Hann taper applied in the
+        frequency domain (Harris 1978); without a taper ``Y = X``.
+        """
+        n = x.shape[0]
+        y = self._tapered[:n]
+        if self.settings.taper == "hann":
+            # on the flattened float views a shift by one complex bin is a shift by two floats;
+            # contiguous 1-d operations are several times faster than 2-d slices
+            xf, yf = x.view(np.float64).reshape(-1), y.view(np.float64).reshape(-1)
+            np.multiply(xf, 2.0, out=yf)
+            np.subtract(yf[2:-2], xf[:-4], out=yf[2:-2])
+            np.subtract(yf[2:-2], xf[4:], out=yf[2:-2])
+            # first and last bin of every row (the flat shifts mixed neighbouring rows there):
+            # X[-1] = conj X[1] and X[L/2+1] = conj X[L/2-1] for real data
+            y[:, 0] = 2.0 * (x[:, 0] - x[:, 1].real)
+            y[:, -1] = 2.0 * (x[:, -1] - x[:, -2].real)
+        else:
+            np.copyto(y, x)
+        yf = y.view(np.float64)
+        np.multiply(yf, yf, out=yf)
+        power += np.einsum("gr,rf->gf", w, yf)
+
+    def _store_segment(
+        self, power: NDArray[np.float64], corr_spectrum: NDArray[np.float64] | None,
+        lagged: NDArray[np.float64] | None, start: int,
+    ) -> None:
+        """Scale the group sums of one segment and keep them."""
+        L = self.settings.segment_frames
+        power = power[:, 0::2] + power[:, 1::2]  # re^2 + im^2 (interleaved)
+        if self.settings.taper == "hann":
+            power /= 16.0
+        dt_s = self.settings.timestep_ps * constants.picosecond_s
+        power *= 2.0 * dt_s / self._window_power
+        if lagged is None:
+            lagged = scipy.fft.irfft(corr_spectrum, n=2 * L, axis=-1)[:, :L]
+        lagged /= np.arange(L, 0, -1, dtype=np.float64)
+        self._power.append(power)
+        self._correlation.append(lagged)
+        self._first_frames.append(start)
+
+    def _wait(self) -> None:
+        """Wait for the background transform (if any); re-raise its exception here."""
+        if self._pending is not None:
+            pending, self._pending = self._pending, None
+            pending.result()
+
+    def _transform_half(self, block: NDArray[np.float64], frames_fed: int) -> None:
+        """Transform the half segment just completed; finish the segment it closes (if any).
+
+        With ``L = 2H`` a segment is two halves ``A`` (first) and ``B``.  Their ``L``-point
+        transforms (each half zero-padded to ``L``) give
+
+        * the segment's DFT, ``X[m] = A[m] + (-1)^m B[m]``, hence the tapered periodogram;
+        * its linear autocorrelation, ``R(k) = r_AA(k) + r_BB(k) + c_AB(k - H)`` with
+          ``r_AA = IDFT|A|^2`` (lags ``0 .. H-1``, zero beyond) and the cross-correlation
+          ``c_AB(d) = sum_n a[n] b[n+d] = IDFT(conj(A) B)`` at ``d = -H .. H-1`` (no
+          wrap-around: ``L >= 2H - 1``).
+
+        Each half is transformed once and used by both segments containing it.
+        """
+        L, H = self.settings.segment_frames, self.settings.hop_frames
+        G = self.n_groups
+        have_previous = bool(self._previous)
+        auto = np.zeros((G, 2 * (H + 1)))
+        cross = np.zeros((G, 2 * (H + 1)))
+        power = np.zeros((G, 2 * (H + 1)))
+        new_transforms = []
+        for index, c0 in enumerate(range(0, self._rows, self._chunk)):
+            c1 = min(self._rows, c0 + self._chunk)
+            n = c1 - c0
+            work = self.workspace[:n]
+            work[:, :H] = block[:, c0:c1].T  # columns H..L-1 stay zero
+            b = scipy.fft.rfft(work, axis=-1, workers=self._fft_workers)
+            w = self._row_weights[:, c0:c1]
+            scratch = self._combined[:n]
+            bf, sf = b.view(np.float64), scratch.view(np.float64)
+            np.multiply(bf, bf, out=sf)
+            auto += np.einsum("gr,rf->gf", w, sf)
+            if have_previous:
+                a = self._previous[index]
+                np.conjugate(a, out=scratch)
+                np.multiply(scratch, b, out=scratch)
+                cross += np.einsum("gr,rf->gf", w, sf)
+                np.multiply(bf, self._alternating, out=sf)
+                np.add(scratch, a, out=scratch)
+                self._add_tapered_power(scratch, w, power)
+            new_transforms.append(b)
+        auto = auto[:, 0::2] + auto[:, 1::2]
+        if have_previous:
+            r_first = scipy.fft.irfft(self._previous_auto, n=L, axis=-1)[:, :H]
+            r_second = scipy.fft.irfft(auto, n=L, axis=-1)[:, :H]
+            c = scipy.fft.irfft(cross[:, 0::2] + 1j * cross[:, 1::2], n=L, axis=-1)
+            lagged = np.roll(c, H, axis=-1)  # lagged[k] = c_AB(k - H), index taken mod L
+            lagged[:, :H] += r_first + r_second
+            self._store_segment(power, None, lagged, frames_fed - L)
+        self._previous = new_transforms
+        self._previous_auto = auto
+
     def _transform_segment(self, start: int) -> None:
         """Transform the segment beginning at relative frame *start* (its last frame just came)."""
         L = self.settings.segment_frames
         half = L // 2
         r = start % L  # ring row holding the segment's first frame
-        hann = self.settings.taper == "hann"
         G = self.n_groups
         corr_spectrum = np.zeros((G, 2 * (L + 1)))  # real/imaginary parts interleaved
         power = np.zeros((G, 2 * (half + 1)))
@@ -443,38 +599,16 @@ class SegmentAccumulator:
             work[:, : L - r] = self.buffer[r:, c0:c1].T
             if r:
                 work[:, L - r : L] = self.buffer[:r, c0:c1].T
-            z = scipy.fft.rfft(work, n=2 * L, axis=-1, workers=self.workers)
+            z = scipy.fft.rfft(work, n=2 * L, axis=-1, workers=self._fft_workers)
             w = self._row_weights[:, c0:c1]
-            x = z[:, ::2]  # L-point DFT of the untapered segment, m = 0 .. L/2
-            y = self._tapered[:n]
-            if hann:
-                # 4 Y[m] = 2 X[m] - X[m-1] - X[m+1]; the factor 16 is removed below
-                np.multiply(x, 2.0, out=y)
-                np.subtract(y[:, 1:-1], x[:, :-2], out=y[:, 1:-1])
-                np.subtract(y[:, 1:-1], x[:, 2:], out=y[:, 1:-1])
-                # X[-1] = conj X[1] and X[L/2+1] = conj X[L/2-1] (real data)
-                y[:, 0] -= 2.0 * x[:, 1].real
-                y[:, -1] -= 2.0 * x[:, -2].real
-            else:
-                np.copyto(y, x)
-            yf = y.view(np.float64)
-            np.multiply(yf, yf, out=yf)
-            power += np.einsum("gr,rf->gf", w, yf)
+            x = self._even[:n]
+            np.copyto(x, z[:, ::2])  # L-point DFT of the untapered segment, m = 0 .. L/2
+            self._add_tapered_power(x, w, power)
             zf = z.view(np.float64)
             np.multiply(zf, zf, out=zf)
             corr_spectrum += np.einsum("gr,rf->gf", w, zf)
-        # |z|^2 = re^2 + im^2: add the interleaved halves (group level, cheap)
         corr_spectrum = corr_spectrum[:, 0::2] + corr_spectrum[:, 1::2]
-        power = power[:, 0::2] + power[:, 1::2]
-        if hann:
-            power /= 16.0
-        dt_s = self.settings.timestep_ps * constants.picosecond_s
-        power *= 2.0 * dt_s / self._window_power
-        lagged = scipy.fft.irfft(corr_spectrum, n=2 * L, axis=-1)[:, :L]
-        lagged /= np.arange(L, 0, -1, dtype=np.float64)
-        self._power.append(power)
-        self._correlation.append(lagged)
-        self._first_frames.append(start)
+        self._store_segment(power, corr_spectrum, None, start)
 
     def result(self) -> SegmentPowers:
         """Per-segment powers and correlations of the segments kept so far.
@@ -485,6 +619,10 @@ class SegmentAccumulator:
             If no full segment was seen.
         """
         L = self.settings.segment_frames
+        self._wait()
+        if self._executor is not None:
+            self._executor.shutdown()
+            self._executor = None
         if not self._power:
             raise SamplingError(
                 f"fewer frames than one segment: got {self._frames_fed} frames, a segment "

@@ -171,6 +171,46 @@ def test_parseval_trapezoid_equals_window_weighted_mean_square(half_L, overlap, 
         assert r.correlation[0, i, 0] == pytest.approx(plain, rel=1e-10)
 
 
+@pytest.mark.parametrize("taper", ["hann", "none"])
+def test_half_overlap_route_equals_whole_segment_route(taper):
+    # Oracle: the whole-segment route (one 2L transform per segment), itself checked against the
+    # direct sums above; the half-segment route (50 % overlap) must agree to rounding.
+    rng = np.random.default_rng(44)
+    L, n_frames = 40, 333
+    x = rng.standard_normal((n_frames, 7, 3)) + 0.3
+    weights = rng.uniform(1.0, 30.0, 7)
+    members = np.array([[True] * 7, [False, True, True, False, False, False, True]])
+    s = SpectrumSettings(0.0025, L, 0.5, taper)
+    fast = SegmentAccumulator(s, weights, members)
+    assert fast._half_overlap
+    slow = SegmentAccumulator(s, weights, members, _route="segment")
+    assert not slow._half_overlap
+    a, b = feed(fast, x).result(), feed(slow, x).result()
+    for name in ("power", "correlation", "mean_square", "segment_first_frame"):
+        np.testing.assert_allclose(getattr(a, name), getattr(b, name), rtol=1e-11,
+                                   atol=1e-12 * np.abs(getattr(b, name)).max())
+
+
+@pytest.mark.parametrize("stop_segment", [None, 6])
+def test_background_thread_gives_identical_results(stop_segment):
+    # Oracle: the serial run; with threads the same operations run in the same order on a
+    # second buffer, so the results must be bit-identical.
+    rng = np.random.default_rng(12)
+    x = rng.standard_normal((257, 6, 3))
+    s = SpectrumSettings(0.001, 20, 0.5)
+    members = np.ones((2, 6), bool)
+    members[1, :3] = False
+    serial = feed(SegmentAccumulator(s, np.arange(1.0, 7.0), members, stop_segment=stop_segment), x)
+    threaded_acc = SegmentAccumulator(s, np.arange(1.0, 7.0), members, workers=2,
+                                      stop_segment=stop_segment)
+    assert threaded_acc._pipelined
+    threaded = feed(threaded_acc, x)
+    a, b = serial.result(), threaded.result()
+    assert a.power.shape[1] == (6 if stop_segment else 24)
+    for name in ("power", "correlation", "mean_square", "segment_first_frame"):
+        np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+
+
 # --------------------------------------------------------------------------- harmonic oscillators
 
 
@@ -534,7 +574,7 @@ def test_memory_does_not_grow_with_frames():
     for n_frames in (64, 256):
         acc = SegmentAccumulator(s, np.ones(10), np.ones((2, 10), bool))
         feed(acc, rng.standard_normal((n_frames, 10, 3)))
-        assert acc.buffer.shape == (32, 30)
+        assert acc.buffer.shape[0] <= 32 and acc.buffer.shape[1] == 30
         arrays = {k: v.nbytes for k, v in vars(acc).items() if isinstance(v, np.ndarray)}
         sizes.append(arrays)
     assert sizes[0] == sizes[1]
