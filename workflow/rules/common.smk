@@ -12,7 +12,6 @@ import yaml
 from snakemake.exceptions import WorkflowError
 from snakemake.utils import validate
 
-
 validate(config, schema="../schemas/config.schema.yaml")
 
 # The schema of one sheet row, read once to know the columns and their types.
@@ -27,7 +26,9 @@ FALSE_WORDS = {"false", "no", "0"}
 
 def sheet_error(where, column, message):
     """The one-line error for a bad sheet cell: names the sheet, the row and the column."""
-    return WorkflowError(f"systems sheet {config['systems']!r}, {where}, column {column!r}: {message}")
+    return WorkflowError(
+        f"systems sheet {config['systems']!r}, {where}, column {column!r}: {message}"
+    )
 
 
 def read_sheet_text(path):
@@ -46,7 +47,9 @@ def read_sheet_text(path):
         kept.append(line)
         line_numbers.append(number)
     if not kept:
-        raise WorkflowError(f"systems sheet {path!r} is empty: add a header line and one row per system")
+        raise WorkflowError(
+            f"systems sheet {path!r} is empty: add a header line and one row per system"
+        )
     return "".join(f"{line}\n" for line in kept), line_numbers[1:]
 
 
@@ -62,7 +65,11 @@ def convert_cell(text, column, where):
         if kind == "number":
             return float(text)
     except ValueError:
-        raise sheet_error(where, column, f"{text!r} is not a{'n integer' if kind == 'integer' else ' number'}") from None
+        raise sheet_error(
+            where,
+            column,
+            f"{text!r} is not a{'n integer' if kind == 'integer' else ' number'}",
+        ) from None
     if kind == "boolean":
         if text.lower() in TRUE_WORDS:
             return True
@@ -114,7 +121,9 @@ def parse_pairs(cell, column, where, separator="="):
     for item in split_items(cell):
         name, sep, value = item.partition(separator)
         if not sep or not name.strip() or not value.strip():
-            raise sheet_error(where, column, f"item {item!r} is not of the form NAME{separator}VALUE")
+            raise sheet_error(
+                where, column, f"item {item!r} is not of the form NAME{separator}VALUE"
+            )
         pairs.append((name.strip(), value.strip()))
     return pairs
 
@@ -124,8 +133,14 @@ def parse_positive_number(text, column, where, allow_zero=False):
         value = float(text)
     except ValueError:
         raise sheet_error(where, column, f"{text!r} is not a number") from None
-    if not (value >= 0 if allow_zero else value > 0) or value != value or value == float("inf"):
-        raise sheet_error(where, column, f"{text!r} must be {'>= 0' if allow_zero else '> 0'}")
+    if (
+        not (value >= 0 if allow_zero else value > 0)
+        or value != value
+        or value == float("inf")
+    ):
+        raise sheet_error(
+            where, column, f"{text!r} must be {'>= 0' if allow_zero else '> 0'}"
+        )
     return value
 
 
@@ -135,18 +150,34 @@ def check_cells(row, where):
     names = [name for name, _ in groups]
     for name in names:
         if not SAFE_NAME.match(name):
-            raise sheet_error(where, "groups", f"group name {name!r}: use letters, digits, '_' and '-' only")
+            raise sheet_error(
+                where,
+                "groups",
+                f"group name {name!r}: use letters, digits, '_' and '-' only",
+            )
         if name == "total":
-            raise sheet_error(where, "groups", "the group name 'total' is reserved (every atom with mass is always analysed as 'total')")
+            raise sheet_error(
+                where,
+                "groups",
+                "the group name 'total' is reserved (every atom with mass is always analysed as 'total')",
+            )
     if len(set(names)) != len(names):
         raise sheet_error(where, "groups", "a group name appears twice")
     known = set(names) | {"total"}
     for column in ("constraints", "constraints_per_molecule"):
         for name, count in parse_pairs(row[column], column, where):
             if name not in known:
-                raise sheet_error(where, column, f"group {name!r} is not defined in column 'groups' (nor 'total')")
+                raise sheet_error(
+                    where,
+                    column,
+                    f"group {name!r} is not defined in column 'groups' (nor 'total')",
+                )
             if not count.isdigit():
-                raise sheet_error(where, column, f"count {count!r} of group {name!r} is not a whole number >= 0")
+                raise sheet_error(
+                    where,
+                    column,
+                    f"count {count!r} of group {name!r} is not a whole number >= 0",
+                )
     parse_pairs(row["reader_options"], "reader_options", where)
     for atom_type, mass in parse_pairs(row["masses"], "masses", where):
         parse_positive_number(mass, "masses", where)
@@ -155,18 +186,34 @@ def check_cells(row, where):
     for key, value in parse_pairs(row["md_values"], "md_values", where):
         group, colon, prop = key.partition(":")
         if not colon or group not in known or not prop:
-            raise sheet_error(where, "md_values", f"item key {key!r} is not GROUP:PROPERTY with a defined group")
+            raise sheet_error(
+                where,
+                "md_values",
+                f"item key {key!r} is not GROUP:PROPERTY with a defined group",
+            )
         try:
             float(value)
         except ValueError:
-            raise sheet_error(where, "md_values", f"value {value!r} of {key!r} is not a number") from None
-    for group, numbers in parse_pairs(row["frozen_bond_wavenumbers"], "frozen_bond_wavenumbers", where):
+            raise sheet_error(
+                where, "md_values", f"value {value!r} of {key!r} is not a number"
+            ) from None
+    for group, numbers in parse_pairs(
+        row["frozen_bond_wavenumbers"], "frozen_bond_wavenumbers", where
+    ):
         if group not in known:
-            raise sheet_error(where, "frozen_bond_wavenumbers", f"group {group!r} is not defined in column 'groups'")
+            raise sheet_error(
+                where,
+                "frozen_bond_wavenumbers",
+                f"group {group!r} is not defined in column 'groups'",
+            )
         for number in numbers.split(","):
             parse_positive_number(number.strip(), "frozen_bond_wavenumbers", where)
     if "stop" in row and pd.notna(row.get("stop")) and row["stop"] <= row["start"]:
-        raise sheet_error(where, "stop", f"stop ({row['stop']}) must be larger than start ({row['start']})")
+        raise sheet_error(
+            where,
+            "stop",
+            f"stop ({row['stop']}) must be larger than start ({row['start']})",
+        )
 
 
 def check_files(row, where):
@@ -196,18 +243,27 @@ def check_selections(row, where):
             warnings.simplefilter("ignore")
             universe = MDAnalysis.Universe(row["topology"], **kwargs)
     except Exception as err:  # MDAnalysis raises many types for unreadable files
-        raise sheet_error(where, "topology", f"MDAnalysis cannot read {row['topology']!r}: {err}".splitlines()[0]) from None
+        raise sheet_error(
+            where,
+            "topology",
+            f"MDAnalysis cannot read {row['topology']!r}: {err}".splitlines()[0],
+        ) from None
     for name, selection in groups:
         try:
             count = universe.select_atoms(selection).n_atoms
         except MDAnalysis.exceptions.SelectionError as err:
-            raise sheet_error(where, "groups", f"selection of group {name!r} is invalid: {err}".splitlines()[0]) from None
+            raise sheet_error(
+                where,
+                "groups",
+                f"selection of group {name!r} is invalid: {err}".splitlines()[0],
+            ) from None
         except Exception:
             # needs data the topology alone lacks (e.g. coordinates); 'qcorr spectrum' checks it
             continue
         if count == 0:
             raise sheet_error(
-                where, "groups",
+                where,
+                "groups",
                 f"selection {selection!r} of group {name!r} matches no atom of {row['topology']!r}",
             )
 
@@ -220,7 +276,8 @@ def load_systems(path):
     for column in header:
         if column not in SYSTEMS_COLUMNS:
             raise sheet_error(
-                "header row", column,
+                "header row",
+                column,
                 f"unknown column; allowed columns: {', '.join(SYSTEMS_COLUMNS)}",
             )
     if len(set(header)) != len(header):
@@ -229,7 +286,9 @@ def load_systems(path):
     if raw.empty:
         raise WorkflowError(f"systems sheet {path!r} has a header but no system rows")
     rows = []
-    for index, (line_number, cells) in enumerate(zip(line_numbers, raw.to_dict("records"))):
+    for index, (line_number, cells) in enumerate(
+        zip(line_numbers, raw.to_dict("records"))
+    ):
         label = str(cells.get("system", "")).strip()
         named = f", system {label!r}" if label else ""
         where = f"row {index + 1} (line {line_number}{named})"
@@ -247,7 +306,9 @@ def load_systems(path):
     duplicated = systems.index[systems.index.duplicated()]
     if len(duplicated):
         where = systems.loc[duplicated[0], "_where"].iloc[-1]
-        raise sheet_error(where, "system", f"the id {duplicated[0]!r} is used by more than one row")
+        raise sheet_error(
+            where, "system", f"the id {duplicated[0]!r} is used by more than one row"
+        )
     if config["spectrum"]["check_selections"] and workflow.is_main_process:
         for _, row in systems.iterrows():
             check_selections(row, row["_where"])
@@ -300,7 +361,10 @@ def get_spectrum_options(wildcards):
     options += ["--overlap", f"{float(config['spectrum']['overlap']):g}"]
     options += ["--taper", config["spectrum"]["taper"]]
     options += ["--velocities-from", row["velocities_from"]]
-    for column, option in (("topology_format", "--topology-format"), ("trajectory_format", "--trajectory-format")):
+    for column, option in (
+        ("topology_format", "--topology-format"),
+        ("trajectory_format", "--trajectory-format"),
+    ):
         if row[column]:
             options += [option, row[column]]
     if row["lammps_units"]:
@@ -336,18 +400,27 @@ def get_block_spectra(wildcards):
 def get_properties_options(wildcards):
     row = systems.loc[wildcards.system]
     options = ["--system", wildcards.system]
-    temperatures = [float(row["temperature_K"])] + [float(t) for t in split_items(row["temperatures_K"])]
+    temperatures = [float(row["temperature_K"])] + [
+        float(t) for t in split_items(row["temperatures_K"])
+    ]
     options += ["--temperatures"] + [f"{t:g}" for t in dict.fromkeys(temperatures)]
     for key, value in parse_pairs(row["md_values"], "md_values", row["_where"]):
         options += ["--md-value", f"{key}={value}"]
-    for group, numbers in parse_pairs(row["frozen_bond_wavenumbers"], "frozen_bond_wavenumbers", row["_where"]):
+    for group, numbers in parse_pairs(
+        row["frozen_bond_wavenumbers"], "frozen_bond_wavenumbers", row["_where"]
+    ):
         options += ["--frozen-bond-wavenumbers", f"{group}={numbers.replace(' ', '')}"]
     return options
 
 
 def get_liquid_options(wildcards):
     row = systems.loc[wildcards.system]
-    return ["--system", wildcards.system, "--symmetry-number", str(int(row["symmetry_number"]))]
+    return [
+        "--system",
+        wildcards.system,
+        "--symmetry-number",
+        str(int(row["symmetry_number"])),
+    ]
 
 
 def get_tables(wildcards):
@@ -359,7 +432,10 @@ def get_tables(wildcards):
 
 def get_final_output():
     figure = FIGURE_FORMAT
-    outputs = ["<results>/corrected_properties.csv", "<results>/corrected_properties.json"]
+    outputs = [
+        "<results>/corrected_properties.csv",
+        "<results>/corrected_properties.json",
+    ]
     for sid in SYSTEM_IDS:
         outputs += [
             f"<results>/plots/{sid}_spectrum.{figure}",

@@ -11,7 +11,10 @@ rule plots:
             caption="../report/spectrum_figure.rst",
             category="2. Spectra",
             subcategory="{system}",
-            labels={"system": "{system}", "figure": "spectrum and weighting functions"},
+            labels={
+                "system": "{system}",
+                "figure": "spectrum and weighting functions",
+            },
         ),
         cumulative=report(
             f"<results>/plots/{{system}}_cumulative.{FIGURE_FORMAT}",
@@ -20,18 +23,18 @@ rule plots:
             subcategory="{system}",
             labels={"system": "{system}", "figure": "cumulative corrections"},
         ),
-    params:
-        temperature=get_temperature,
     log:
         "<logs>/plots/{system}.log",
     benchmark:
         "<benchmarks>/plots/{system}.tsv"
+    conda:
+        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
         runtime=10,
-    conda:
-        "../envs/qcorr.yaml"
+    params:
+        temperature=get_temperature,
     shell:
         "qcorr plot {input:q} --temperature {params.temperature:q}"
         " --spectrum-figure {output.spectrum:q} --cumulative-figure {output.cumulative:q}"

@@ -8,18 +8,18 @@ rule harmonic_properties:
     output:
         table="<results>/tables/{system}_harmonic.csv",
         sidecar="<results>/tables/{system}_harmonic.json",
-    params:
-        options=get_properties_options,
     log:
         "<logs>/harmonic_properties/{system}.log",
     benchmark:
         "<benchmarks>/harmonic_properties/{system}.tsv"
+    conda:
+        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
         runtime=10,
-    conda:
-        "../envs/qcorr.yaml"
+    params:
+        options=get_properties_options,
     shell:
         "qcorr properties {input:q} {params.options:q} --output {output.table:q} > {log:q} 2>&1"
 
@@ -30,20 +30,20 @@ rule liquid_properties:
     output:
         table="<results>/tables/{system}_2pt.csv",
         sidecar="<results>/tables/{system}_2pt.json",
-    params:
-        options=get_liquid_options,
     log:
         "<logs>/liquid_properties/{system}.log",
     benchmark:
         "<benchmarks>/liquid_properties/{system}.tsv"
     wildcard_constraints:
         system=alternatives(LIQUID_IDS),
+    conda:
+        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
         runtime=10,
-    conda:
-        "../envs/qcorr.yaml"
+    params:
+        options=get_liquid_options,
     shell:
         "qcorr liquid {input:q} {params.options:q} --output {output.table:q} > {log:q} 2>&1"
 
@@ -63,11 +63,11 @@ rule merge_tables:
         "<logs>/merge_tables/merge.log",
     benchmark:
         "<benchmarks>/merge_tables/merge.tsv"
+    conda:
+        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
         runtime=10,
-    conda:
-        "../envs/qcorr.yaml"
     shell:
         "qcorr merge {input:q} --output {output.table:q} > {log:q} 2>&1"

@@ -8,20 +8,20 @@ rule spectrum:
         trajectory=get_trajectories,
     output:
         "<results>/spectra/{system}.nc",
-    params:
-        options=get_spectrum_options,
     log:
         "<logs>/spectrum/{system}.log",
     benchmark:
         "<benchmarks>/spectrum/{system}.tsv"
     wildcard_constraints:
         system=alternatives(SINGLE_IDS),
+    conda:
+        "../envs/qcorr.yaml"
     threads: 2
     resources:
         mem_mb=get_spectrum_mem_mb,
         runtime=get_spectrum_runtime,
-    conda:
-        "../envs/qcorr.yaml"
+    params:
+        options=get_spectrum_options,
     shell:
         "qcorr spectrum --topology {input.topology:q} --trajectory {input.trajectory:q}"
         " {params.options:q} --threads {threads} --progress never"
@@ -33,21 +33,23 @@ rule spectrum_block:
         topology=get_topology,
         trajectory=get_trajectories,
     output:
-        temp("<results>/spectrum_blocks/{system}/block-{block_index}-of-{block_count}.nc"),
-    params:
-        options=get_spectrum_options,
+        temp(
+            "<results>/spectrum_blocks/{system}/block-{block_index}-of-{block_count}.nc"
+        ),
     log:
         "<logs>/spectrum_block/{system}/block-{block_index}-of-{block_count}.log",
     benchmark:
         "<benchmarks>/spectrum_block/{system}/block-{block_index}-of-{block_count}.tsv"
     wildcard_constraints:
         system=alternatives(BLOCKED_IDS),
+    conda:
+        "../envs/qcorr.yaml"
     threads: 2
     resources:
         mem_mb=get_spectrum_mem_mb,
         runtime=get_spectrum_runtime,
-    conda:
-        "../envs/qcorr.yaml"
+    params:
+        options=get_spectrum_options,
     shell:
         "qcorr spectrum --topology {input.topology:q} --trajectory {input.trajectory:q}"
         " {params.options:q} --block {wildcards.block_index}-of-{wildcards.block_count}"
@@ -65,11 +67,11 @@ rule combine_blocks:
         "<benchmarks>/combine_blocks/{system}.tsv"
     wildcard_constraints:
         system=alternatives(BLOCKED_IDS),
+    conda:
+        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
         runtime=10,
-    conda:
-        "../envs/qcorr.yaml"
     shell:
         "qcorr combine {input:q} --output {output:q} > {log:q} 2>&1"
