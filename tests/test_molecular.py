@@ -3,6 +3,8 @@ Mechanics, 3rd ed., Ch. 4-5) on synthetic molecules whose answer is exact."""
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
@@ -212,3 +214,92 @@ def test_molecule_ids_from_universe_residues_and_fragments():
         mo.molecule_ids_from_universe(u, np.arange(6), "fragment"), [0, 0, 0, 1, 1, 2])
     with pytest.raises(ConfigError, match="--molecules"):
         mo.molecule_ids_from_universe(u, np.arange(6), "chain")
+
+
+@pytest.mark.slow
+def test_rigid_tip3p_water_from_openmm_through_spectrum_command(tmp_path, run_qcorr):
+    # Real engine: 129 rigid TIP3P waters (OpenMM, SETTLE-type constraints, NVE after
+    # Langevin equilibration).  Rigid-body kinematics make the kinetic energy split
+    # exactly into centre-of-mass and rotational parts, so the difference (vibration)
+    # spectrum integrates to ~0 and is set to 0; equipartition (e.g. McQuarrie,
+    # Statistical Mechanics, Ch. 7) makes translation ~3 and rotation ~3 per molecule.
+    import MDAnalysis as mda
+    import openmm as mm
+    import pandas as pd
+    from openmm import app
+    from openmm import unit as U
+
+    import synthetic
+
+    ff = app.ForceField("tip3p.xml")
+    mod = app.Modeller(app.Topology(), [])
+    mod.addSolvent(ff, model="tip3p", boxSize=mm.Vec3(1.6, 1.6, 1.6) * U.nanometer)
+    system = ff.createSystem(mod.topology, nonbondedMethod=app.PME, nonbondedCutoff=0.7 * U.nanometer,
+                             constraints=app.HBonds, rigidWater=True)
+    platform = mm.Platform.getPlatformByName("CPU")
+    lang = mm.LangevinMiddleIntegrator(300 * U.kelvin, 5 / U.picosecond, 2 * U.femtosecond)
+    lang.setRandomNumberSeed(RNG_SEED)
+    ctx = mm.Context(system, lang, platform, {"Threads": "1"})
+    ctx.setPositions(mod.positions)
+    mm.LocalEnergyMinimizer.minimize(ctx, 10, 200)
+    ctx.setVelocitiesToTemperature(300 * U.kelvin, RNG_SEED)
+    lang.step(2000)
+    verlet = mm.VerletIntegrator(2 * U.femtosecond)
+    verlet.setConstraintTolerance(1e-8)
+    nve = mm.Context(system, verlet, platform, {"Threads": "1"})
+    nve.setState(ctx.getState(getPositions=True, getVelocities=True))
+    frames, n_atoms = 1500, mod.topology.getNumAtoms()
+    pos, vel = np.empty((frames, n_atoms, 3)), np.empty((frames, n_atoms, 3))
+    for f in range(frames):
+        s = nve.getState(getPositions=True, getVelocities=True)
+        pos[f] = s.getPositions(asNumpy=True).value_in_unit(U.angstrom)
+        vel[f] = s.getVelocities(asNumpy=True).value_in_unit(U.angstrom / U.picosecond)
+        verlet.step(2)
+    top = tmp_path / "water.pdb"
+    with open(top, "w") as handle:
+        app.PDBFile.writeFile(mod.topology, mod.positions, handle)
+    u = mda.Universe(str(top))
+    box = 16.0
+    scn = synthetic.Scenario(pos, vel, np.arange(frames) * 0.004, u.atoms.masses, list(u.atoms.names),
+                             list(u.atoms.types), u.atoms.resindices + 1, box, np.array([]))
+    trr = synthetic.write_trr(scn, tmp_path / "water.trr")
+    n = u.atoms.n_residues
+    out = tmp_path / "water.nc"
+    code, _, err = run_qcorr("spectrum", "--topology", top, "--trajectory", trr, "--temperature", 300,
+                             "--constraints-per-molecule", "total=3", "--segment-ps", "2", "--molecular",
+                             "--progress", "never", "--output", out)
+    assert code == 0, err
+    import xarray as xr
+
+    with xr.open_dataset(out, engine="h5netcdf") as ds:
+        x = ds["wavenumber"].values
+        trn = np.trapezoid(ds["vdos_translation"].values[0], x) / n
+        rot = np.trapezoid(ds["vdos_rotation"].values[0], x) / n
+        assert int(ds["whole_molecule_count"].values[0]) == n
+        assert float(ds["rotational_dof_per_molecule"].values[0]) == 3.0
+        assert float(ds["vibrational_dof_per_molecule"].values[0]) == 0.0
+        assert np.all(ds["vdos_vibration"].values[0] == 0.0)
+        # exact kinetic-energy split of rigid bodies: difference integral ~ 0 (SETTLE tolerance)
+        assert abs(float(ds["vibration_difference_integral"].values[0])) < 1e-3 * 6 * n
+        # equipartition over a 6 ps NVE run of 129 molecules: a few per cent
+        assert trn + rot == pytest.approx((6 * n - 3) / n, rel=1e-3)  # normalisation to the dof
+        assert trn == pytest.approx(3.0, rel=0.06)
+        assert rot == pytest.approx(3.0, rel=0.06)
+        moments = ds["principal_moments"].values[0]
+    # TIP3P geometry (O-H 0.9572 A, H-O-H 104.52 deg; Jorgensen et al., J. Chem. Phys.
+    # 79, 926 (1983)): principal moments computed here from the geometry
+    m_o, m_h = u.atoms.masses[0], u.atoms.masses[1]
+    half = math.radians(104.52 / 2)
+    h = np.array([[0.9572 * math.sin(half), 0.9572 * math.cos(half), 0.0],
+                  [-0.9572 * math.sin(half), 0.9572 * math.cos(half), 0.0], [0.0, 0.0, 0.0]])
+    mass = np.array([m_h, m_h, m_o])
+    com = mass @ h / mass.sum()
+    r = h - com
+    inertia = sum(mm_ * (v @ v * np.eye(3) - np.outer(v, v)) for mm_, v in zip(mass, r))
+    np.testing.assert_allclose(moments, np.linalg.eigvalsh(inertia), rtol=1e-4)
+    table = tmp_path / "water.csv"
+    code, _, err = run_qcorr("liquid", out, "--output", table, "--quiet", "--symmetry-number", "2")
+    assert code == 0, err
+    frame = pd.read_csv(table)
+    s = frame.set_index("property")["quantum"]
+    assert s["entropy"] == pytest.approx(s["entropy_translation"] + s["entropy_rotation"], rel=1e-12)
