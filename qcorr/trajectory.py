@@ -394,7 +394,7 @@ def massive_atoms(universe, *, exclude_massless: bool = False, topology_name: st
         first = idx[0]
         raise TrajectoryError(
             f"{len(idx)} atoms in {topology_name} have zero, negative or undefined mass (first: atom "
-            f"index {first} name {names[first]!r} type {types[first]!r}; types {', '.join(bad_types[:10])}); "
+            f"index {first} name {str(names[first])!r} type {str(types[first])!r}; types {', '.join(bad_types[:10])}); "
             "give masses with --mass TYPE=AMU, or pass --exclude-massless if they are virtual sites"
         )
     keep = np.flatnonzero(~dropped)
