@@ -44,7 +44,9 @@ trapezoid rule assumes:
 u_1 = c h (methods of product integration, e.g. Davis & Rabinowitz [2]_).
 
 Standard errors come from the per-segment spectra (block averaging): a
-property is evaluated on each segment's spectrum and its standard error is
+property is evaluated on each segment's spectrum, rescaled to integrate to the
+same dof as the spectrum (:func:`normalised_segments`: the normalisation to the
+dof is itself a fluctuating ratio), and its standard error is
 s / sqrt(K_eff), s the sample standard deviation over the K segments.
 Overlapping tapered segments are correlated; K_eff is Welch's [3]_ effective
 number of independent segments, K / [1 + 2 sum_j (1 - j/K) rho_j^2], with
@@ -326,6 +328,31 @@ def effective_segment_count(
     return n_segments / total
 
 
+def normalised_segments(wavenumber_cm: ArrayLike, segments: ArrayLike, target: float) -> FloatArray:
+    """Rescale each segment's spectrum so that its trapezoid integral is *target* (the dof).
+
+    A spectrum normalised to its degrees of freedom is a ratio (power / total
+    power).  Evaluating a property on each segment rescaled this way makes the
+    segment scatter include the fluctuation of the normalisation itself (the
+    delta-method variance of a ratio estimator); with the file's common factor
+    instead, that part would be missed.  Segments whose integral is not positive
+    are left as they are.
+
+    Parameters
+    ----------
+    wavenumber_cm : array_like, shape (n,)
+        Wavenumber grid, cm^-1.
+    segments : array_like, shape (K, n)
+        Per-segment densities of states, cm.
+    target : float
+        Integral each segment should have (degrees of freedom).
+    """
+    segs = np.asarray(segments, dtype=float)
+    integrals = np.trapezoid(segs, np.asarray(wavenumber_cm, dtype=float), axis=-1)
+    scale = np.where(integrals > 0, target / np.where(integrals > 0, integrals, 1.0), 1.0)
+    return segs * scale[..., None]
+
+
 def segment_standard_error(per_segment: ArrayLike, effective_count: float) -> FloatArray:
     """Standard error s / sqrt(K_eff) over the segment axis (axis 0); NaN if K < 2."""
     values = np.asarray(per_segment, dtype=float)
@@ -543,9 +570,10 @@ def _group_rows(
         if extrapolated
         else ""
     )
+    segments = normalised_segments(x, group.vdos_segments, float(np.trapezoid(group.vdos, x)))
     for prop in properties:
         cl, qu, co = mode_integrals(x, group.vdos, temperature_K, prop)
-        cl_s, qu_s, co_s = mode_integrals(x, group.vdos_segments, temperature_K, prop)
+        cl_s, qu_s, co_s = mode_integrals(x, segments, temperature_K, prop)
         se = {
             "classical": segment_standard_error(cl_s, k_eff),
             "quantum": segment_standard_error(qu_s, k_eff),
@@ -613,7 +641,8 @@ def _msd_rows(
         ]
     x = group.wavenumber_cm
     q, c = mean_square_displacement(x, group.vdos, temperature_K, group.group_mass_g_mol)
-    q_s, c_s = mean_square_displacement(x, group.vdos_segments, temperature_K, group.group_mass_g_mol)
+    segments = normalised_segments(x, group.vdos_segments, float(np.trapezoid(group.vdos, x)))
+    q_s, c_s = mean_square_displacement(x, segments, temperature_K, group.group_mass_g_mol)
     q, c = float(q), float(c)
     note = "mass-weighted mean over the group's atoms of <|u|^2> (= 3 <u_x^2>)"
     ratio_note = "quantum / classical mean-square displacement"

@@ -440,6 +440,45 @@ def test_standard_error_is_calibrated() -> None:
     assert 1.0 - 4 * 0.035 < spread < math.sqrt(15 / 13) + 4 * 0.035
 
 
+def test_standard_error_calibrated_for_overlapping_normalised_segments() -> None:
+    """Welch-overlapped Hann segments of an AR(1) (discrete Ornstein-Uhlenbeck) signal.
+
+    Each of 300 seeded replicates: 16 channels, 24 segments of 64 samples at 75 %
+    overlap, one-sided periodograms averaged over channels, the run's spectrum
+    normalised to 3 dof (as a spectrum file is).  The spread over replicates of
+    the heat-capacity correction is compared with the mean standard error
+    qcorr reports (segments rescaled to the dof, Welch's K_eff).  Sampling error
+    of a standard deviation from 300 replicates: 1/sqrt(600) = 0.041; the band
+    0.85-1.15 allows 3.5 of those.  The naive error (file-wide normalisation,
+    K instead of K_eff) is far too small, which is why qcorr does not use it.
+    """
+    from scipy.signal import lfilter
+
+    rng = np.random.default_rng(4242)
+    length, overlap, count, channels, a = 64, 0.75, 24, 16, 0.7
+    hop = length - round(overlap * length)
+    n = length + (count - 1) * hop
+    window = 0.5 - 0.5 * np.cos(2 * np.pi * np.arange(length) / length)  # periodic Hann
+    index = (np.arange(count) * hop)[:, None] + np.arange(length)[None, :]
+    x = np.arange(length // 2 + 1) * 10.0  # cm-1
+    prop = PROPERTIES["heat_capacity"]
+    k_eff = harmonic.effective_segment_count(count, length, overlap, "hann")
+    estimates, errors, naive = [], [], []
+    for _ in range(300):
+        v = lfilter([1.0], [1.0, -a], rng.standard_normal((channels, n)), axis=1)
+        power = (np.abs(np.fft.rfft(v[:, index] * window, axis=-1)) ** 2).mean(axis=0)
+        common = power * (3.0 / np.trapezoid(power.mean(axis=0), x))  # file normalisation
+        estimates.append(float(harmonic.mode_integrals(x, common.mean(axis=0), 300.0, prop)[2]))
+        per_segment = harmonic.mode_integrals(
+            x, harmonic.normalised_segments(x, common, 3.0), 300.0, prop)[2]
+        errors.append(float(harmonic.segment_standard_error(per_segment, k_eff)))
+        naive.append(float(harmonic.segment_standard_error(
+            harmonic.mode_integrals(x, common, 300.0, prop)[2], count)))
+    spread = float(np.std(estimates))
+    assert 0.85 < spread / np.mean(errors) < 1.15
+    assert spread / np.mean(naive) > 1.5
+
+
 def test_standard_errors_reported_and_scale_with_scatter() -> None:
     ds_quiet = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                            points_below_debye=1000, segment_scatter=0.01, seed=3)
@@ -517,3 +556,15 @@ def test_caution_when_integral_differs_from_dof() -> None:
     ok = harmonic.harmonic_properties(spectra.debye_solid_dataset(debye_temperature_K=300,
                                       temperature_K=300, points_below_debye=500), system="y")
     assert not any("integrates to" in c for c in ok.cautions)
+
+
+def test_equipartition_values_have_no_segment_error() -> None:
+    """Classical harmonic E = dof kT and Cv = dof k are exact once each segment is normalised to the dof."""
+    ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
+                                     points_below_debye=1000, segment_scatter=0.05, seed=11)
+    result = harmonic.harmonic_properties(ds, system="e", properties=["energy", "heat_capacity"],
+                                          include_msd=False)
+    for name in ("energy", "heat_capacity"):
+        row = _one(result, property=name, basis="per_mole_atoms")
+        assert row.classical_se == pytest.approx(0.0, abs=1e-12 * row.classical)
+        assert row.quantum_se > 1e-6 * abs(row.quantum)
