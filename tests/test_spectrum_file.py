@@ -119,3 +119,99 @@ def test_incomplete_dataset_never_written(tmp_path):
     with pytest.raises(SpectrumFileError, match="'vacf'"):
         write_spectrum(ds, target)
     assert list(tmp_path.iterdir()) == []
+
+
+# --------------------------------------------------------------------------- assembling and diagnostics
+from types import SimpleNamespace  # noqa: E402
+
+from qcorr import diagnostics  # noqa: E402
+from qcorr.spectrum_file import assemble_spectrum, combine_blocks, group_table, raw_segments_of  # noqa: E402
+
+
+def _assembled(raw_scale=1.0, n_segments=6, shape="line", com_mv2=0.0, temperature=300.0, first_segment=0,
+               window_segments=None, block=(1, 1)):
+    """A spectrum built by assemble_spectrum from hand-made raw data with a known integral.
+
+    Group 'total' has 9 dof; its raw spectrum per segment integrates to 9 * raw_scale * (1 + small
+    per-segment variation that averages to zero), so raw_integral = 9 * raw_scale exactly.
+    """
+    wn = np.linspace(0.0, 1000.0, 101)  # cm-1, Nyquist 1000
+    if shape == "line":
+        base = np.exp(-0.5 * ((wn - 300.0) / 20.0) ** 2)
+    else:  # flat up to Nyquist
+        base = np.ones_like(wn)
+    base /= np.trapezoid(base, wn)
+    wiggle = np.linspace(-0.1, 0.1, n_segments)  # sums to zero
+    raw = (9.0 * raw_scale * (1.0 + wiggle))[None, :, None] * base[None, None, :]
+    corr = np.ones((1, n_segments, 5)) * np.linspace(2.0, 1.0, 5)
+    groups = [SimpleNamespace(name="total", selection="all", degrees_of_freedom=9.0, constraints=0.0,
+                              atom_count=4, molecule_count=1, mass=40.0)]
+    window_segments = window_segments or n_segments
+    attrs = dict(minimal_spectrum_dataset().attrs)
+    attrs.update(temperature_K=temperature, nyquist_wavenumber=1000.0, resolution_wavenumber=10.0,
+                 segment_length_ps=3.3, frames_used=100, timestep_ps=0.002, frame_step=1, segment_frames=10,
+                 velocity_source="stored", block_index=block[0], block_count=block[1],
+                 segment_count_window=window_segments, statistics_frames=10 * n_segments,
+                 centre_of_mass_mv2_u_A2_per_ps2=com_mv2, finite_difference_correction="none",
+                 mean_box_volume_A3=1000.0)
+    return assemble_spectrum(
+        raw_segments=raw, correlation_segments=corr, wavenumber=wn, lag_ps=np.arange(5) * 0.002,
+        table=group_table(groups), segment_index=np.arange(first_segment, first_segment + n_segments),
+        segment_first_frame=np.arange(first_segment, first_segment + n_segments) * 5, attrs=attrs,
+    )
+
+
+def test_assembled_normalisation():
+    # sum rule (Lin, Blanco, Goddard 2003): integral = dof; T_kin = T * raw/dof
+    ds = _assembled(raw_scale=1.05)
+    assert float(ds["raw_integral"][0]) == pytest.approx(9.45, rel=1e-12)
+    assert float(ds["vdos"].integrate("wavenumber")[0]) == pytest.approx(9.0, rel=1e-12)
+    np.testing.assert_allclose(ds["vdos_segments"].mean("segment"), ds["vdos"], rtol=1e-12)
+    assert float(ds["kinetic_temperature"][0]) == pytest.approx(315.0, rel=1e-12)
+    assert float(ds["vacf"][0, 0]) == 1.0 and float(ds["vacf"][0, -1]) == pytest.approx(0.5)
+    np.testing.assert_allclose(np.trapezoid(raw_segments_of(ds), ds["wavenumber"].values, axis=-1),
+                               ds["raw_integral_segments"], rtol=1e-12)
+
+
+def test_diagnostics_fire_on_their_thresholds():
+    status = lambda ds: {d.check: d.status for d in diagnostics.run_diagnostics(ds)}  # noqa: E731
+    assert status(_assembled()) == {"aliasing": "ok", "resolution": "ok", "temperature": "ok",
+                                    "centre_of_mass_drift": "ok", "sum_rule": "ok"}
+    assert status(_assembled(shape="flat"))["aliasing"] == "warning"  # 5 % of the weight near Nyquist
+    assert status(_assembled(n_segments=3))["resolution"] == "warning"
+    s = status(_assembled(raw_scale=1.025))  # 2.5 % apart: sum rule (2 %) but not temperature (3 %)
+    assert s["sum_rule"] == "warning" and s["temperature"] == "ok"
+    s = status(_assembled(raw_scale=0.95))
+    assert s["sum_rule"] == "warning" and s["temperature"] == "warning"
+    # COM: M V^2 = 3kT * 11 at 300 K (kT in u A^2 ps^-2 from CODATA via scipy)
+    from scipy import constants as sc
+
+    kT = sc.k * 300.0 / (sc.atomic_mass * (sc.angstrom / sc.pico) ** 2)
+    assert status(_assembled(com_mv2=3 * kT * 11))["centre_of_mass_drift"] == "warning"
+    assert status(_assembled(com_mv2=3 * kT * 9))["centre_of_mass_drift"] == "ok"
+    with pytest.warns(diagnostics.QcorrWarning, match="sum_rule"):
+        diagnostics.announce(diagnostics.run_diagnostics(_assembled(raw_scale=0.9)))
+
+
+def test_combine_blocks_rebuilds_the_whole():
+    whole = _assembled(n_segments=6)
+    # the same six segments split 2 + 4: raw spectra and correlations per segment are identical
+    raw = raw_segments_of(whole)
+    a = _assembled(n_segments=6)
+    blocks = []
+    for (first, stop), index in (((0, 2), 1), ((2, 6), 2)):
+        b = assemble_spectrum(
+            raw_segments=raw[:, first:stop], correlation_segments=whole["vacf_segments_raw"].values[:, first:stop],
+            wavenumber=whole["wavenumber"].values, lag_ps=whole["lag"].values,
+            table={"group": whole["group"].values, **{k: whole[k].values for k in
+                   ("degrees_of_freedom", "constraint_count", "atom_count", "molecule_count", "group_mass", "selection")}},
+            segment_index=np.arange(first, stop), segment_first_frame=np.arange(first, stop) * 5,
+            attrs={**a.attrs, "block_index": index, "block_count": 2, "statistics_frames": 10 * (stop - first)},
+        )
+        blocks.append(b)
+    joined = combine_blocks(blocks[::-1], ["b2.nc", "b1.nc"], "qcorr combine b2.nc b1.nc")
+    for name in ("vdos", "vdos_segments", "vacf", "raw_integral", "kinetic_temperature"):
+        np.testing.assert_allclose(joined[name], whole[name], rtol=1e-12)
+    assert joined.attrs["block_count"] == 1 and joined.attrs["statistics_frames"] == 60
+    with pytest.raises(SpectrumFileError, match="missing \\[1\\]"):
+        combine_blocks([blocks[1]], ["b2.nc"], "x")
