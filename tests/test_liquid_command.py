@@ -408,3 +408,25 @@ def test_lennard_jones_argon_liquid_entropy_against_jzg_equation_of_state(tmp_pa
     assert d_s0 == pytest.approx(d_msd, rel=0.10)
     # liquid: fluidicity well inside (0, 1)
     assert 0.2 < side["components"]["translation"]["fluidicity"] < 0.6
+
+
+def test_warns_when_solid_like_part_is_negative_at_low_frequency(tmp_path, run_qcorr):
+    # A narrow zero-frequency peak (20 % of the dof, half width 0.5 cm^-1) on a Debye
+    # band: the hard-sphere gas fixed by S(0) through the fluidicity equation of Lin et
+    # al. (2003) carries f = 0.88 of the dof, far more than the peak, so S - S_gas < 0
+    # just above zero frequency, far beyond the 2 % segment scatter.  qcorr must say so.
+    n, m, t = 1000, 39.948, 100.0
+    x = np.linspace(0, 300, 3001)
+    g = 3 * n * 0.2
+    s0 = 2 * g / (math.pi * 0.5)
+    s = _lorentzian(x, s0, g) + np.where(x <= 200.0, 9 * n * 0.8 * x**2 / 200.0**3, 0.0)
+    spec = spectra.GroupSpec(s, float(np.trapezoid(s, x)), n, n, m * n, segment_scatter=0.02)
+    ds = spectra.spectrum_dataset(x, {"total": spec}, temperature_K=t, n_segments=6,
+                                  attrs_override={"mean_box_volume_A3": n * 3.405**3 / 0.8})
+    path = spectra.write_spectrum_file(ds, tmp_path / "spike.nc")
+    code, _, err = run_qcorr("liquid", path, "--output", tmp_path / "spike.csv", "--quiet")
+    assert code == 0, err
+    assert "negative beyond 3 standard errors at low frequency" in err
+    side = json.loads((tmp_path / "spike.json").read_text())
+    assert side["groups"]["total"]["components"]["translation"]["solid_dos_minimum_cm_per_molecule"] < 0
+    assert any("negative" in c for c in side["cautions"])

@@ -274,3 +274,23 @@ def test_rotation_needs_moments_and_uses_rigid_rotor():
     s_rr = tp.rigid_rotor_entropy(t, theta, 2)
     assert res.fluidicity > 0.999
     assert res.entropy == pytest.approx(s_rr, abs=0.01)
+
+
+def test_linear_rotor_rotation_component():
+    # Linear molecule (2 rotational dof): in the gas limit the rotational entropy is
+    # the linear rigid rotor 1 + ln(T/(sigma Theta)) (McQuarrie, Statistical
+    # Mechanics, Ch. 6); N2 with B = 1.998 cm^-1, sigma = 2: 41.144 J/(mol K) at
+    # 298.15 K (team notes §4.3 [C]).  Gas DoS integral = 2 f N.
+    n, t = 500, T298
+    moment = sc.h / (8 * math.pi**2 * sc.c * 100 * 1.998) / sc.atomic_mass / 1e-20
+    vol = n * sc.k * t / sc.bar / 1e-30
+    s0 = 1e4 / tp.normalized_diffusivity(1.0, n, t, 28.014, vol)
+    x = np.concatenate([[0.0], np.geomspace(1e-6, 1e6, 200001) * 4 * n / (math.pi * s0)])
+    s = _ou_dos(x, s0, 2 * n)
+    res = tp.two_phase_component("rotation", x, s, molecule_count=n, temperature_K=t, mass_u=28.014,
+                                 volume_A3=vol, principal_moments_u_A2=[0.0, moment, moment],
+                                 symmetry_number=2)
+    assert res.dof_per_molecule == pytest.approx(2.0, rel=1e-6)
+    assert np.trapezoid(res.gas_dos, x) == pytest.approx(2 * n * res.fluidicity, rel=1e-4)
+    assert res.entropy * R == pytest.approx(41.144, abs=0.01)
+    assert res.heat_capacity == pytest.approx(1.0, rel=1e-3)  # 2 x k/2

@@ -279,10 +279,12 @@ def _warn_checks(gin, result, seg_results, k_eff, wavenumber, temperature):
         solids = np.array([r.components[comp].solid_dos for r in seg_results]) if len(seg_results) >= 2 else None
         if solids is not None:
             noise = segment_standard_error(solids, k_eff)
-            # low frequency = below the maximum of the component's spectrum; above it the
-            # hard-sphere Lorentzian tail exceeding a soft-potential spectrum is a known
-            # feature of the model (Desjarlais, Phys. Rev. E 88, 062145 (2013))
-            low = wavenumber <= wavenumber[int(np.argmax(c.gas_dos + c.solid_dos))]
+            # low frequency = below the mean wavenumber of the component's spectrum; above
+            # it the hard-sphere Lorentzian tail exceeding a soft-potential spectrum is a
+            # known feature of the model (Desjarlais, Phys. Rev. E 88, 062145 (2013))
+            total = c.gas_dos + c.solid_dos
+            mean = np.trapezoid(wavenumber * total, wavenumber) / np.trapezoid(total, wavenumber)
+            low = wavenumber <= mean
             bad = low & (c.solid_dos < -3.0 * noise) & (c.solid_dos < 0)
             if bad.any():
                 k = int(np.flatnonzero(bad)[0])
