@@ -205,3 +205,14 @@ def test_help_gives_every_option_with_its_unit(capsys):
                      "u (g/mol)", "--overlap FRACTION", "--lammps-units", "A/fs", "--block I-of-N",
                      "--threads N", "--progress", "--velocities-from", "--reader-option KEY=VALUE", "--step N"):
         assert fragment in text, fragment
+
+
+def test_progress_bar_only_when_asked_or_on_a_terminal(oscillator_files, tmp_path, run_qcorr):
+    args = _args(oscillator_files, None, "--output", tmp_path / "p.nc")
+    args.remove("--progress")
+    args.remove("never")
+    code, _, err = run_qcorr(*args, "--progress", "always")
+    assert code == 0 and "frames:" in err and "frame/s" in err
+    (tmp_path / "p.nc").unlink()
+    code, _, err = run_qcorr(*args)  # auto: stderr is captured here, not a terminal
+    assert code == 0 and "frames:" not in err
