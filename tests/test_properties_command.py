@@ -309,3 +309,14 @@ def test_end_to_end_from_trajectory(oscillator_files, tmp_path, run_qcorr) -> No
     zpe = harmonic_rows[harmonic_rows.property == "zero_point_energy"].quantum.iloc[0]
     exact = 21 / 4 * sum(sc.h * m * resolution_hz / 2 for m in OSC_BINS) / 1000
     assert zpe == pytest.approx(exact, rel=1e-10)
+
+
+def test_help_states_units(capsys) -> None:
+    """Every dimensional option names its unit (house style)."""
+    with pytest.raises(SystemExit) as info:
+        main(["properties", "--help"])
+    assert info.value.code == 0
+    text = " ".join(capsys.readouterr().out.split())
+    for fragment in ("temperatures in K", "J/(mol K)", "kJ/mol", "cm-1", "per mole of molecules"):
+        assert fragment in text
+    assert "(default: None)" not in text

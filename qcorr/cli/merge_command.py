@@ -22,7 +22,7 @@ DESCRIPTION = (
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("tables", metavar="TABLE.csv", nargs="+", help="tables to merge")
     parser.add_argument("--output", required=True, metavar="ALL.csv",
-                        help="merged table to write (CSV); ALL.json is written beside it")
+                        help="merged table to write (CSV); ALL.json is written beside it%(default).0s")
 
 
 def run(args: argparse.Namespace) -> int:

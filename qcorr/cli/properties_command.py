@@ -28,32 +28,37 @@ DESCRIPTION = (
 )
 
 
+#: appended to helps that state their default in words: "%(default).0s" prints nothing,
+#: and its presence stops ArgumentDefaultsHelpFormatter from adding "(default: None)"
+_NO_AUTO_DEFAULT = "%(default).0s"
+
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("spectrum", metavar="SPECTRUM.nc", help="spectrum file from 'qcorr spectrum'")
     parser.add_argument("--output", required=True, metavar="TABLE.csv",
-                        help="table to write (CSV); the sidecar TABLE.json is written beside it")
+                        help="table to write (CSV); the sidecar TABLE.json is written beside it" + _NO_AUTO_DEFAULT)
     parser.add_argument("--system", metavar="ID", default=None,
                         help="system identifier for the table (default: the spectrum file's name "
-                             "without extension)")
+                             "without extension)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--temperatures", metavar="K", type=float, nargs="+", default=None,
                         help="temperatures in K at which to evaluate the spectrum (default: the "
-                             "spectrum's temperature; others are harmonic extrapolations)")
+                             "spectrum's temperature; others are harmonic extrapolations)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--properties", metavar="NAME", nargs="+", default=None,
-                        help=f"properties to report (default: all): {', '.join(PROPERTIES)}")
+                        help=f"properties to report (default: all): {', '.join(PROPERTIES)}" + _NO_AUTO_DEFAULT)
     parser.add_argument("--md-value", metavar="GROUP:PROPERTY=VALUE", action="extend", nargs="+",
                         default=[],
                         help="classical value from the MD run, per mole of molecules, in J/(mol K) "
                              "for heat_capacity and entropy, kJ/mol for energies, at the spectrum's "
-                             "temperature; the quantum value is then this plus the correction")
+                             "temperature; the quantum value is then this plus the correction" + _NO_AUTO_DEFAULT)
     parser.add_argument("--frozen-bond-wavenumbers", metavar="GROUP=W1,W2,...", action="extend",
                         nargs="+", default=[],
                         help="wavenumbers in cm-1 of the bonds constrained in the MD, per molecule "
-                             "of GROUP; reported on separate rows (method frozen_bond_addon)")
+                             "of GROUP; reported on separate rows (method frozen_bond_addon)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=float,
                         default=harmonic.DEFAULT_ZERO_FREQUENCY_THRESHOLD,
                         help="a group diffuses when S(0) exceeds this fraction of dof/<wavenumber> "
                              "(and 3 standard errors); its absolute entropy and free energy are refused")
-    parser.add_argument("--quiet", action="store_true", help="do not print the table")
+    parser.add_argument("--quiet", action="store_true", help="do not print the table" + _NO_AUTO_DEFAULT)
 
 
 def parse_md_values(items: list[str]) -> dict[tuple[str, str], float]:
