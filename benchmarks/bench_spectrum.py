@@ -38,13 +38,18 @@ TARGET_TIME_RATIO = 1.3
 TARGET_MEMORY_RATIO = 1.1
 
 
-def write_trajectory(directory: Path, n_atoms: int, n_frames: int, timestep_ps: float) -> tuple[Path, Path]:
+def write_trajectory(
+    directory: Path, n_atoms: int, n_frames: int, timestep_ps: float
+) -> tuple[Path, Path]:
     """Write ``system.pdb`` and ``run.trr`` (positions + velocities, Angstrom and Angstrom/ps)."""
     import MDAnalysis as mda
 
     rng = np.random.default_rng(20261202)
     u = mda.Universe.empty(
-        n_atoms, n_residues=n_atoms, atom_resindex=np.arange(n_atoms), trajectory=True,
+        n_atoms,
+        n_residues=n_atoms,
+        atom_resindex=np.arange(n_atoms),
+        trajectory=True,
         velocities=True,
     )
     for name, value in (("names", "AR"), ("types", "AR"), ("elements", "Ar"), ("resnames", "ARG")):
@@ -52,7 +57,9 @@ def write_trajectory(directory: Path, n_atoms: int, n_frames: int, timestep_ps: 
     u.add_TopologyAttr("masses", np.full(n_atoms, 39.948))
     box = 3.4 * n_atoms ** (1.0 / 3.0) * 1.2
     u.dimensions = [box, box, box, 90.0, 90.0, 90.0]
-    sigma = 3.5  # Angstrom/ps, about sqrt(kT/m) for argon near 600 K; the value does not matter here
+    sigma = (
+        3.5  # Angstrom/ps, about sqrt(kT/m) for argon near 600 K; the value does not matter here
+    )
     a = float(np.exp(-5.0 * timestep_ps))  # velocity memory ~0.2 ps
     kick = sigma * np.sqrt(1.0 - a * a)
     v = rng.standard_normal((n_atoms, 3)) * sigma
@@ -87,7 +94,7 @@ def child(mode: str, pdb: str, trr: str, repeats: int, segment_frames: int, work
     wall0, cpu0 = time.perf_counter(), time.process_time()
     if mode == "read":
         for _ in u.trajectory:
-            atoms.velocities
+            _ = atoms.velocities  # the read being timed
     else:
         settings = SpectrumSettings(u.trajectory.dt, segment_frames, 0.5, "hann")
         acc = SegmentAccumulator(
@@ -98,14 +105,36 @@ def child(mode: str, pdb: str, trr: str, repeats: int, segment_frames: int, work
         acc.result()
     wall, cpu = time.perf_counter() - wall0, time.process_time() - cpu0
     peak_kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss  # KiB on Linux
-    print(json.dumps({"mode": mode, "frames": n_frames, "wall_s": wall, "cpu_s": cpu,
-                      "peak_MiB": peak_kib / 1024.0}))
+    print(
+        json.dumps(
+            {
+                "mode": mode,
+                "frames": n_frames,
+                "wall_s": wall,
+                "cpu_s": cpu,
+                "peak_MiB": peak_kib / 1024.0,
+            }
+        )
+    )
 
 
 def run_child(args: argparse.Namespace, mode: str, pdb: Path, trr: Path, repeats: int) -> dict:
-    cmd = [sys.executable, __file__, "--child", mode, "--pdb", str(pdb), "--trr", str(trr),
-           "--repeats", str(repeats), "--segment-frames", str(args.segment_frames),
-           "--threads", str(args.threads)]
+    cmd = [
+        sys.executable,
+        __file__,
+        "--child",
+        mode,
+        "--pdb",
+        str(pdb),
+        "--trr",
+        str(trr),
+        "--repeats",
+        str(repeats),
+        "--segment-frames",
+        str(args.segment_frames),
+        "--threads",
+        str(args.threads),
+    ]
     out = subprocess.run(cmd, check=True, capture_output=True, text=True).stdout
     return json.loads(out.strip().splitlines()[-1])
 
@@ -114,16 +143,31 @@ def run_command(args: argparse.Namespace, pdb: Path, trr: Path, directory: Path)
     exe = shutil.which("qcorr")
     if exe is None:
         return None
-    probe = subprocess.run([exe, "spectrum", "--help"], capture_output=True, text=True)
+    probe = subprocess.run([exe, "spectrum", "--help"], capture_output=True, text=True, check=False)
     if probe.returncode != 0:
         return None
     segment_ps = args.segment_frames * args.timestep_ps
-    cmd = [exe, "spectrum", "--topology", str(pdb), "--trajectory", str(trr), "--temperature",
-           "300", "--output", str(directory / "spectrum.nc"), "--segment-ps", f"{segment_ps:g}",
-           "--threads", str(args.threads), "--progress", "never"]
+    cmd = [
+        exe,
+        "spectrum",
+        "--topology",
+        str(pdb),
+        "--trajectory",
+        str(trr),
+        "--temperature",
+        "300",
+        "--output",
+        str(directory / "spectrum.nc"),
+        "--segment-ps",
+        f"{segment_ps:g}",
+        "--threads",
+        str(args.threads),
+        "--progress",
+        "never",
+    ]
     wall0 = time.perf_counter()
     usage0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-    done = subprocess.run(cmd, capture_output=True, text=True)
+    done = subprocess.run(cmd, capture_output=True, text=True, check=False)
     usage1 = resource.getrusage(resource.RUSAGE_CHILDREN)
     wall = time.perf_counter() - wall0
     if done.returncode != 0:
@@ -136,13 +180,20 @@ def run_command(args: argparse.Namespace, pdb: Path, trr: Path, directory: Path)
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--atoms", type=int, default=2000, help="atoms in the generated system")
-    parser.add_argument("--frames", type=int, default=10000, help="frames in the generated trajectory")
+    parser.add_argument(
+        "--frames", type=int, default=10000, help="frames in the generated trajectory"
+    )
     parser.add_argument("--timestep-ps", type=float, default=0.002, help="time between frames, ps")
-    parser.add_argument("--segment-frames", type=int, default=1000,
-                        help="frames per spectrum segment (even)")
+    parser.add_argument(
+        "--segment-frames", type=int, default=1000, help="frames per spectrum segment (even)"
+    )
     parser.add_argument("--threads", type=int, default=1, help="FFT threads")
-    parser.add_argument("--workdir", type=Path, default=None,
-                        help="directory for the generated files (default: a temporary one, removed)")
+    parser.add_argument(
+        "--workdir",
+        type=Path,
+        default=None,
+        help="directory for the generated files (default: a temporary one, removed)",
+    )
     parser.add_argument("--skip-memory", action="store_true", help="skip the 4x-frames memory run")
     parser.add_argument("--child", help=argparse.SUPPRESS)
     parser.add_argument("--pdb", help=argparse.SUPPRESS)
@@ -160,33 +211,49 @@ def main(argv: list[str] | None = None) -> int:
         t0 = time.perf_counter()
         pdb, trr = write_trajectory(directory, args.atoms, args.frames, args.timestep_ps)
         size_mb = trr.stat().st_size / 2**20
-        print(f"generated {args.atoms} atoms x {args.frames} frames ({size_mb:.0f} MiB TRR) "
-              f"in {time.perf_counter() - t0:.1f} s; segment {args.segment_frames} frames, "
-              f"50 % overlap, Hann, {args.threads} FFT thread(s); load average "
-              f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs")
+        print(
+            f"generated {args.atoms} atoms x {args.frames} frames ({size_mb:.0f} MiB TRR) "
+            f"in {time.perf_counter() - t0:.1f} s; segment {args.segment_frames} frames, "
+            f"50 % overlap, Hann, {args.threads} FFT thread(s); load average "
+            f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs"
+        )
         read = run_child(args, "read", pdb, trr, 1)
         acc = run_child(args, "accumulate", pdb, trr, 1)
         n = read["frames"]
-        print(f"bare MDAnalysis read : {1e6 * read['wall_s'] / n:8.1f} us/frame wall, "
-              f"{1e6 * read['cpu_s'] / n:8.1f} us/frame CPU")
-        print(f"read + accumulator   : {1e6 * acc['wall_s'] / n:8.1f} us/frame wall, "
-              f"{1e6 * acc['cpu_s'] / n:8.1f} us/frame CPU")
-        print(f"time ratio accumulator/read: {acc['wall_s'] / read['wall_s']:.3f} wall, "
-              f"{acc['cpu_s'] / read['cpu_s']:.3f} CPU   (target ratio <= {TARGET_TIME_RATIO})")
+        print(
+            f"bare MDAnalysis read : {1e6 * read['wall_s'] / n:8.1f} us/frame wall, "
+            f"{1e6 * read['cpu_s'] / n:8.1f} us/frame CPU"
+        )
+        print(
+            f"read + accumulator   : {1e6 * acc['wall_s'] / n:8.1f} us/frame wall, "
+            f"{1e6 * acc['cpu_s'] / n:8.1f} us/frame CPU"
+        )
+        print(
+            f"time ratio accumulator/read: {acc['wall_s'] / read['wall_s']:.3f} wall, "
+            f"{acc['cpu_s'] / read['cpu_s']:.3f} CPU   (target ratio <= {TARGET_TIME_RATIO})"
+        )
         command = run_command(args, pdb, trr, directory)
         if command is None:
             print("qcorr spectrum: not available, full command not timed")
         else:
-            print(f"qcorr spectrum       : {1e6 * command['wall_s'] / n:8.1f} us/frame wall, "
-                  f"{1e6 * command['cpu_s'] / n:8.1f} us/frame CPU (whole process, imports included)")
-            print(f"time ratio command/read: {command['wall_s'] / read['wall_s']:.3f} wall, "
-                  f"{command['cpu_s'] / read['cpu_s']:.3f} CPU   (target ratio <= {TARGET_TIME_RATIO})")
+            print(
+                f"qcorr spectrum       : {1e6 * command['wall_s'] / n:8.1f} us/frame wall, "
+                f"{1e6 * command['cpu_s'] / n:8.1f} us/frame CPU (whole process, imports included)"
+            )
+            print(
+                f"time ratio command/read: {command['wall_s'] / read['wall_s']:.3f} wall, "
+                f"{command['cpu_s'] / read['cpu_s']:.3f} CPU   (target ratio <= {TARGET_TIME_RATIO})"
+            )
         if not args.skip_memory:
             big = run_child(args, "accumulate", pdb, trr, 4)
-            print(f"peak memory accumulator loop: {acc['peak_MiB']:.0f} MiB at 1x "
-                  f"({n} frames), {big['peak_MiB']:.0f} MiB at 4x ({big['frames']} frames)")
-            print(f"memory 4x / 1x: {big['peak_MiB'] / acc['peak_MiB']:.3f}   "
-                  f"(target memory 4x / 1x <= {TARGET_MEMORY_RATIO})")
+            print(
+                f"peak memory accumulator loop: {acc['peak_MiB']:.0f} MiB at 1x "
+                f"({n} frames), {big['peak_MiB']:.0f} MiB at 4x ({big['frames']} frames)"
+            )
+            print(
+                f"memory 4x / 1x: {big['peak_MiB'] / acc['peak_MiB']:.3f}   "
+                f"(target memory 4x / 1x <= {TARGET_MEMORY_RATIO})"
+            )
     finally:
         if own_dir:
             shutil.rmtree(directory, ignore_errors=True)

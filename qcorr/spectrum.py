@@ -32,14 +32,18 @@ Its DFT has three non-zero coefficients, so the tapered spectrum is the
 three-tap convolution ``Y[m] = X[m]/2 - (X[m-1] + X[m+1])/4`` of the untapered
 one.
 
-*One transform per segment.*  The untapered segment is zero-padded to ``2L``
-and transformed once with :func:`scipy.fft.rfft`.  The squared modulus gives the
-linear (not circular) autocorrelation after an inverse transform
-(Wiener-Khinchin with zero padding, [4]_); the even bins of the padded transform
-are the ``L``-point DFT ``X[m]`` from which the tapered periodogram follows by
-the convolution above.  Sums over channels are taken in the frequency domain by
-a matrix product with the (group x channel) weight matrix, so only one inverse
-transform per group is needed.
+*Transforms.*  With 50 % overlap (``L = 2 hop``, the default) each half segment
+is zero-padded to ``L`` and transformed once with :func:`scipy.fft.rfft`; it
+serves both segments that contain it.  For a segment made of halves ``A`` and
+``B`` the ``L``-point DFT is ``X[m] = A[m] + (-1)^m B[m]`` and the linear
+autocorrelation is ``r_AA + r_BB`` plus the cross-correlation of ``A`` with
+``B`` shifted by ``hop``, all from inverse transforms of group sums of ``|A|^2``,
+``|B|^2`` and ``conj(A) B`` (Wiener-Khinchin with zero padding, [4]_).  For other
+overlaps each segment is zero-padded to ``2L`` and transformed once: the squared
+modulus gives the linear autocorrelation, the even bins are ``X[m]``.  In both
+routes the tapered periodogram follows from ``X`` by the three-tap convolution
+above, and sums over channels are taken in the frequency domain with the
+(group x channel) weights, so only a few inverse transforms per group are needed.
 
 No detrending: removing each segment's mean velocity would remove the
 diffusive (zero-frequency) power [1]_.
@@ -73,16 +77,16 @@ from qcorr import constants
 from qcorr.errors import ConfigError, SamplingError, TrajectoryError
 
 __all__ = [
-    "TAPERS",
     "FINITE_DIFFERENCE_SCHEMES",
-    "SpectrumSettings",
-    "SegmentPowers",
+    "TAPERS",
     "SegmentAccumulator",
+    "SegmentPowers",
+    "SpectrumSettings",
+    "block_range",
+    "finite_difference_power_transfer",
+    "frames_needed",
     "segment_frames_for",
     "segment_starts",
-    "block_range",
-    "frames_needed",
-    "finite_difference_power_transfer",
     "vdos_per_wavenumber",
 ]
 
@@ -252,12 +256,12 @@ def block_range(n_segments: int, block_index: int, block_count: int) -> tuple[in
     return first, stop
 
 
-def frames_needed(first_segment: int, stop_segment: int, settings: SpectrumSettings) -> tuple[int, int]:
+def frames_needed(
+    first_segment: int, stop_segment: int, settings: SpectrumSettings
+) -> tuple[int, int]:
     """Relative frame range ``[start, stop)`` read by segments ``first_segment .. stop_segment-1``."""
     if not 0 <= first_segment < stop_segment:
-        raise ConfigError(
-            f"segment range [{first_segment}, {stop_segment}) is empty or negative"
-        )
+        raise ConfigError(f"segment range [{first_segment}, {stop_segment}) is empty or negative")
     hop, L = settings.hop_frames, settings.segment_frames
     return first_segment * hop, (stop_segment - 1) * hop + L
 
@@ -509,8 +513,11 @@ class SegmentAccumulator:
         power += np.einsum("gr,rf->gf", w, yf)
 
     def _store_segment(
-        self, power: NDArray[np.float64], corr_spectrum: NDArray[np.float64] | None,
-        lagged: NDArray[np.float64] | None, start: int,
+        self,
+        power: NDArray[np.float64],
+        corr_spectrum: NDArray[np.float64] | None,
+        lagged: NDArray[np.float64] | None,
+        start: int,
     ) -> None:
         """Scale the group sums of one segment and keep them."""
         L = self.settings.segment_frames
@@ -682,6 +689,17 @@ def finite_difference_power_transfer(
     ndarray
         Dimensionless factor, same shape as *frequency_Hz*.
 
+    Examples
+    --------
+    An O-H stretch at 3700 cm^-1 sampled every 1 fs (frequency in Hz = wavenumber x c):
+
+    >>> from qcorr import constants
+    >>> nu = 3700.0 * constants.speed_of_light_cm_per_s
+    >>> print(f"{finite_difference_power_transfer(nu, 0.001, 'central'):.4f}")
+    0.8482
+    >>> print(f"{finite_difference_power_transfer(nu, 0.001, 'forward'):.4f}")
+    0.9602
+
     References
     ----------
     A. V. Oppenheim, R. W. Schafer, Discrete-Time Signal Processing, 3rd ed.,
@@ -720,6 +738,20 @@ def vdos_per_wavenumber(power: ArrayLike, temperature_K: float) -> NDArray[np.fl
     -------
     ndarray
         VDOS in cm (i.e. per cm^-1), same shape as *power*.
+
+    Examples
+    --------
+    One argon atom (39.948 u) at equipartition holds ``m <v^2> = 3 kT``; a flat power
+    density of that total spread over 0 .. 100 THz integrates to 3 degrees of freedom:
+
+    >>> from qcorr import constants
+    >>> kT = constants.boltzmann_J_per_K * 300.0
+    >>> u_A2_per_ps2 = constants.atomic_mass_kg * (constants.angstrom_m / constants.picosecond_s) ** 2
+    >>> m_v2 = 3 * kT / u_A2_per_ps2  # u (Angstrom/ps)^2
+    >>> band_Hz = 100e12
+    >>> vdos = vdos_per_wavenumber(m_v2 / band_Hz, 300.0)
+    >>> print(f"{vdos * band_Hz / constants.speed_of_light_cm_per_s:.6f}")
+    3.000000
     """
     if not (math.isfinite(temperature_K) and temperature_K > 0):
         raise ConfigError(f"--temperature must be positive and finite, got {temperature_K} K")

@@ -22,13 +22,16 @@ Oracles used here:
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
 import pytest
 import scipy.constants as sc
 import scipy.signal
-from hypothesis import given, settings as hyp_settings, strategies as st
+from hypothesis import given
+from hypothesis import settings as hyp_settings
+from hypothesis import strategies as st
 
 from qcorr.errors import ConfigError, QcorrError, SamplingError, TrajectoryError
 from qcorr.spectrum import (
@@ -117,8 +120,12 @@ def test_fft_route_equals_direct_sums(taper, overlap):
             seg = x[start : start + L][:, mask]
             ref_p = direct_power_spectrum(seg, weights[mask], dt_ps * 1e-12, taper)
             ref_c = direct_lag_sum(seg, weights[mask])
-            np.testing.assert_allclose(result.power[g, i], ref_p, rtol=1e-10, atol=1e-10 * ref_p.max())
-            np.testing.assert_allclose(result.correlation[g, i], ref_c, rtol=1e-10, atol=1e-10 * ref_c[0])
+            np.testing.assert_allclose(
+                result.power[g, i], ref_p, rtol=1e-10, atol=1e-10 * ref_p.max()
+            )
+            np.testing.assert_allclose(
+                result.correlation[g, i], ref_c, rtol=1e-10, atol=1e-10 * ref_c[0]
+            )
 
 
 def test_matches_scipy_welch():
@@ -127,13 +134,21 @@ def test_matches_scipy_welch():
     rng = np.random.default_rng(7)
     L, n_frames = 64, 1000
     dt_ps = 0.005
-    x = rng.standard_normal((n_frames, 4, 3)).cumsum(axis=0) * 0.1 + rng.standard_normal((n_frames, 4, 3))
+    x = rng.standard_normal((n_frames, 4, 3)).cumsum(axis=0) * 0.1 + rng.standard_normal(
+        (n_frames, 4, 3)
+    )
     weights = np.array([1.008, 15.999, 1.008, 39.95])
     s = SpectrumSettings(dt_ps, L, 0.5, "hann")
     result = feed(SegmentAccumulator(s, weights, np.ones((1, 4), bool)), x).result()
     f, p = scipy.signal.welch(
-        x, fs=1.0 / (dt_ps * sc.pico), window="hann", nperseg=L, noverlap=L // 2,
-        detrend=False, scaling="density", axis=0,
+        x,
+        fs=1.0 / (dt_ps * sc.pico),
+        window="hann",
+        nperseg=L,
+        noverlap=L // 2,
+        detrend=False,
+        scaling="density",
+        axis=0,
     )
     p[0] *= 2.0
     p[-1] *= 2.0
@@ -187,8 +202,12 @@ def test_half_overlap_route_equals_whole_segment_route(taper):
     assert not slow._half_overlap
     a, b = feed(fast, x).result(), feed(slow, x).result()
     for name in ("power", "correlation", "mean_square", "segment_first_frame"):
-        np.testing.assert_allclose(getattr(a, name), getattr(b, name), rtol=1e-11,
-                                   atol=1e-12 * np.abs(getattr(b, name)).max())
+        np.testing.assert_allclose(
+            getattr(a, name),
+            getattr(b, name),
+            rtol=1e-11,
+            atol=1e-12 * np.abs(getattr(b, name)).max(),
+        )
 
 
 @pytest.mark.parametrize("stop_segment", [None, 6])
@@ -201,8 +220,9 @@ def test_background_thread_gives_identical_results(stop_segment):
     members = np.ones((2, 6), bool)
     members[1, :3] = False
     serial = feed(SegmentAccumulator(s, np.arange(1.0, 7.0), members, stop_segment=stop_segment), x)
-    threaded_acc = SegmentAccumulator(s, np.arange(1.0, 7.0), members, workers=2,
-                                      stop_segment=stop_segment)
+    threaded_acc = SegmentAccumulator(
+        s, np.arange(1.0, 7.0), members, workers=2, stop_segment=stop_segment
+    )
     assert threaded_acc._pipelined
     threaded = feed(threaded_acc, x)
     a, b = serial.result(), threaded.result()
@@ -349,8 +369,17 @@ def ornstein_uhlenbeck_run():
     for _ in range(n_frames):
         acc.add_frame(v)
         v = a * v + kick * rng.standard_normal((n_atoms, 3))
-    return dict(result=acc.result(), a=a, kT=kT, m=m_u, n_atoms=n_atoms, gamma=gamma_per_ps,
-                dt_s=dt_ps * sc.pico, L=L, sigma=sigma)
+    return {
+        "result": acc.result(),
+        "a": a,
+        "kT": kT,
+        "m": m_u,
+        "n_atoms": n_atoms,
+        "gamma": gamma_per_ps,
+        "dt_s": dt_ps * sc.pico,
+        "L": L,
+        "sigma": sigma,
+    }
 
 
 def test_ornstein_uhlenbeck_spectrum_band_averages(ornstein_uhlenbeck_run):
@@ -389,7 +418,9 @@ def test_ornstein_uhlenbeck_zero_frequency_green_kubo(ornstein_uhlenbeck_run):
     s0_green_kubo = 12.0 * m * N * D_A2_per_ps / kT * sc.pico  # s (per Hz)
     a, dt_s = run["a"], run["dt_s"]
     s0_discrete = 3 * N * 2.0 * dt_s * (1 + a) / (1 - a)
-    assert s0_discrete == pytest.approx(s0_green_kubo, rel=(gamma * dt_s / sc.pico) ** 2 / 12 * 1.01)
+    assert s0_discrete == pytest.approx(
+        s0_green_kubo, rel=(gamma * dt_s / sc.pico) ** 2 / 12 * 1.01
+    )
     per_segment = r.power[0, :, 0] / kT  # VDOS at zero frequency, per Hz
     # window bias at nu = 0, computed exactly (expected_windowed_estimate)
     bias = expected_windowed_estimate(a, run["L"], dt_s, 0) / (2 * dt_s * (1 + a) / (1 - a)) - 1
@@ -453,10 +484,14 @@ def test_finite_difference_transfer_of_sampled_sinusoid():
 @pytest.mark.parametrize(
     "dt_fs, wavenumber, central, forward",
     [  # attenuation table (values recomputed below; printed 4-digit values as a cross-check)
-        (0.5, 1600, 0.9925, 0.9981), (0.5, 3700, 0.9602, 0.9899),
-        (1, 1600, 0.9701, 0.9925), (1, 3700, 0.8482, 0.9602),
-        (2, 1600, 0.8846, 0.9701), (2, 3700, 0.4987, 0.8482),
-        (4, 1600, 0.6003, 0.8846), (4, 3700, 0.0154, 0.4987),
+        (0.5, 1600, 0.9925, 0.9981),
+        (0.5, 3700, 0.9602, 0.9899),
+        (1, 1600, 0.9701, 0.9925),
+        (1, 3700, 0.8482, 0.9602),
+        (2, 1600, 0.8846, 0.9701),
+        (2, 3700, 0.4987, 0.8482),
+        (4, 1600, 0.6003, 0.8846),
+        (4, 3700, 0.0154, 0.4987),
     ],
 )
 def test_finite_difference_attenuation_table(dt_fs, wavenumber, central, forward):
@@ -477,7 +512,9 @@ def test_finite_difference_limits():
     dt_ps = 0.002
     nyquist = 0.5 / (dt_ps * sc.pico)
     f = np.array([0.0, nyquist])
-    np.testing.assert_allclose(finite_difference_power_transfer(f, dt_ps, "forward"), [1, 4 / math.pi**2])
+    np.testing.assert_allclose(
+        finite_difference_power_transfer(f, dt_ps, "forward"), [1, 4 / math.pi**2]
+    )
     np.testing.assert_allclose(
         finite_difference_power_transfer(f, dt_ps, "central"), [1, 0], atol=1e-30
     )
@@ -497,6 +534,17 @@ def test_vdos_per_wavenumber_units():
     np.testing.assert_allclose(vdos_per_wavenumber(power, T), expected, rtol=1e-14)
     with pytest.raises(ConfigError, match="--temperature"):
         vdos_per_wavenumber(power, 0.0)
+
+
+def test_docstring_examples():
+    # The printed values in the docstrings are claims; run them (methods.md 2.7 table values
+    # and the equipartition sum rule).
+    import doctest
+
+    import qcorr.spectrum
+
+    outcome = doctest.testmod(qcorr.spectrum, optionflags=doctest.ELLIPSIS)
+    assert outcome.attempted >= 4 and outcome.failed == 0
 
 
 # --------------------------------------------------------------------------- bookkeeping
@@ -519,7 +567,7 @@ def test_block_range_partitions_segments():
         for count in range(1, n + 1):
             pieces = [block_range(n, i, count) for i in range(count)]
             assert pieces[0][0] == 0 and pieces[-1][1] == n
-            for (a0, a1), (b0, b1) in zip(pieces, pieces[1:]):
+            for (a0, a1), (b0, b1) in itertools.pairwise(pieces):
                 assert a1 == b0
             assert all(b > a for a, b in pieces)
             sizes = [b - a for a, b in pieces]
@@ -586,15 +634,15 @@ def test_memory_does_not_grow_with_frames():
 @pytest.mark.parametrize(
     "kwargs, option",
     [
-        (dict(timestep_ps=0.002, segment_frames=3), "--segment-ps"),
-        (dict(timestep_ps=0.002, segment_frames=101), "--segment-ps"),
-        (dict(timestep_ps=0.002, segment_frames=10.0), "--segment-ps"),
-        (dict(timestep_ps=0.002, segment_frames=100, overlap=1.0), "--overlap"),
-        (dict(timestep_ps=0.002, segment_frames=100, overlap=-0.1), "--overlap"),
-        (dict(timestep_ps=0.002, segment_frames=4, overlap=0.9), "--overlap"),
-        (dict(timestep_ps=0.002, segment_frames=100, taper="hamming"), "--taper"),
-        (dict(timestep_ps=0.0, segment_frames=100), "time step"),
-        (dict(timestep_ps=float("nan"), segment_frames=100), "time step"),
+        ({"timestep_ps": 0.002, "segment_frames": 3}, "--segment-ps"),
+        ({"timestep_ps": 0.002, "segment_frames": 101}, "--segment-ps"),
+        ({"timestep_ps": 0.002, "segment_frames": 10.0}, "--segment-ps"),
+        ({"timestep_ps": 0.002, "segment_frames": 100, "overlap": 1.0}, "--overlap"),
+        ({"timestep_ps": 0.002, "segment_frames": 100, "overlap": -0.1}, "--overlap"),
+        ({"timestep_ps": 0.002, "segment_frames": 4, "overlap": 0.9}, "--overlap"),
+        ({"timestep_ps": 0.002, "segment_frames": 100, "taper": "hamming"}, "--taper"),
+        ({"timestep_ps": 0.0, "segment_frames": 100}, "time step"),
+        ({"timestep_ps": float("nan"), "segment_frames": 100}, "time step"),
     ],
 )
 def test_bad_settings_name_the_option(kwargs, option):
