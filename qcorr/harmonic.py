@@ -70,6 +70,7 @@ References
 
 from __future__ import annotations
 
+import json
 import math
 import os
 from dataclasses import dataclass
@@ -698,6 +699,23 @@ def _frozen_rows(
     return rows
 
 
+def spectrum_diagnostic_cautions(ds: xr.Dataset) -> list[str]:
+    """Cautions from the spectrum file's own diagnostics (every check not reported "ok").
+
+    The ``diagnostics`` attribute is a JSON list of ``{"check", "status", "message"}``
+    (spectrum-file contract); an unreadable attribute gives one caution saying so.
+    """
+    try:
+        items = json.loads(ds.attrs.get("diagnostics", "[]"))
+        return [
+            f"Spectrum diagnostic '{item['check']}': {item['message']}"
+            for item in items
+            if str(item.get("status", "ok")) != "ok"
+        ]
+    except (TypeError, ValueError, KeyError, AttributeError):
+        return ["The spectrum file's diagnostics attribute could not be read."]
+
+
 @dataclass
 class PropertyResult:
     """Rows, cautions and per-group diagnostics of :func:`harmonic_properties`."""
@@ -791,6 +809,7 @@ def harmonic_properties(
     info: dict[str, dict] = {}
     if k_eff < 2 and int(ds.sizes.get("segment", 0)) < 2:
         cautions.append("The spectrum has fewer than two segments: no standard errors.")
+    cautions += spectrum_diagnostic_cautions(ds)
     for g in groups:
         where = f"spectrum file '{os.fspath(path)}', group '{g.name}'"
         bin_se = segment_standard_error(g.vdos_segments, k_eff)

@@ -568,3 +568,17 @@ def test_equipartition_values_have_no_segment_error() -> None:
         row = _one(result, property=name, basis="per_mole_atoms")
         assert row.classical_se == pytest.approx(0.0, abs=1e-12 * row.classical)
         assert row.quantum_se > 1e-6 * abs(row.quantum)
+
+
+def test_spectrum_diagnostics_become_cautions() -> None:
+    """Checks the spectrum file did not pass ("status" other than "ok") are carried into the cautions."""
+    import json
+
+    ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300, points_below_debye=500)
+    ds.attrs["diagnostics"] = json.dumps([
+        {"check": "resolution", "status": "warning", "message": "resolution 83 cm-1 is coarse"},
+        {"check": "aliasing", "status": "ok", "message": "fine"},
+    ])
+    cautions = harmonic.harmonic_properties(ds, system="d", include_msd=False).cautions
+    assert "Spectrum diagnostic 'resolution': resolution 83 cm-1 is coarse" in cautions
+    assert not any("aliasing" in c for c in cautions)
