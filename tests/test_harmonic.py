@@ -582,3 +582,13 @@ def test_spectrum_diagnostics_become_cautions() -> None:
     cautions = harmonic.harmonic_properties(ds, system="d", include_msd=False).cautions
     assert "Spectrum diagnostic 'resolution': resolution 83 cm-1 is coarse" in cautions
     assert not any("aliasing" in c for c in cautions)
+
+
+def test_single_segment_gives_no_standard_error() -> None:
+    ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
+                                     points_below_debye=500, n_segments=1)
+    result = harmonic.harmonic_properties(ds, system="one", properties=["entropy"], include_msd=False)
+    row = _one(result, property="entropy", basis="per_mole_atoms")
+    assert math.isnan(row.quantum_se) and math.isnan(row.correction_se)
+    assert "one segment: no standard error" in row.note
+    assert any("fewer than two segments" in c for c in result.cautions)
