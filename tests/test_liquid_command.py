@@ -430,3 +430,16 @@ def test_warns_when_solid_like_part_is_negative_at_low_frequency(tmp_path, run_q
     side = json.loads((tmp_path / "spike.json").read_text())
     assert side["groups"]["total"]["components"]["translation"]["solid_dos_minimum_cm_per_molecule"] < 0
     assert any("negative" in c for c in side["cautions"])
+
+
+def test_help_gives_every_option_with_its_unit(capsys):
+    from qcorr.cli import build_parser
+
+    with pytest.raises(SystemExit):
+        build_parser().parse_args(["liquid", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    for fragment in ("--volume A3", "cubic angstrom", "--md-energy GROUP=KJ_PER_MOL", "kJ/mol",
+                     "--symmetry-number [GROUP=]N", "--hard-sphere-entropy", "published",
+                     "constant-volume", "--gas-volume", "--rotational-fluidicity", "same-as-translation",
+                     "--diffusion-from", "msd", "--split-output", "cm per cm-1"):
+        assert fragment in text, fragment

@@ -303,3 +303,42 @@ def test_rigid_tip3p_water_from_openmm_through_spectrum_command(tmp_path, run_qc
     frame = pd.read_csv(table)
     s = frame.set_index("property")["quantum"]
     assert s["entropy"] == pytest.approx(s["entropy_translation"] + s["entropy_rotation"], rel=1e-12)
+
+
+def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp_path, run_qcorr):
+    # Antiphase diatomics (tests/synthetic.py): the two atoms of each molecule move with
+    # opposite velocities, so the centre of mass is at rest (translation spectrum = 0,
+    # Koenig's theorem) and every bit of kinetic energy is rotation + vibration of a
+    # linear (two-atom) molecule: 2 rotational dof, 1 vibrational dof per molecule.
+    import xarray as xr
+
+    from conftest import OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
+
+    base = ["spectrum", "--topology", oscillator_files["topology"], "--trajectory",
+            oscillator_files["trr"], "--temperature", OSC_TEMPERATURE_K, "--segment-ps", OSC_SEGMENT_PS,
+            "--mass", f"O={OSC_MASS_U}", "--progress", "never", "--group", "first=resid 1",
+            "--group", "half=name OA"]
+    out = tmp_path / "mol.nc"
+    code, _, err = run_qcorr(*base, "--molecular", "--output", out)
+    assert code == 0, err
+    with xr.open_dataset(out, engine="h5netcdf") as ds:
+        x = ds["wavenumber"].values
+        total = np.trapezoid(ds["vdos"].values, x, axis=-1)
+        trn = np.trapezoid(ds["vdos_translation"].values, x, axis=-1)
+        rot = np.trapezoid(ds["vdos_rotation"].values, x, axis=-1)
+        vib = np.trapezoid(ds["vdos_vibration"].values, x, axis=-1)
+        groups = [str(g) for g in ds["group"].values]
+        assert ds["rotational_dof_per_molecule"].values[groups.index("total")] == 2.0
+        assert ds["vibrational_dof_per_molecule"].values[groups.index("total")] == 1.0
+        assert ds["whole_molecule_count"].values.tolist() == [4, 1, 0]  # 'half' splits molecules
+        assert np.all(np.isnan(ds["vdos_translation"].values[groups.index("half")]))
+    for g in (groups.index("total"), groups.index("first")):
+        assert abs(trn[g]) < 1e-9 * total[g]
+        assert rot[g] + vib[g] == pytest.approx(total[g], rel=1e-9)
+        assert rot[g] > 0 and vib[g] > 0
+    # bad combinations are refused before the frame loop, and no file is written
+    code, _, err = run_qcorr(*base, "--molecular", "--block", "1-of-2", "--output", tmp_path / "b.nc")
+    assert code != 0 and "--molecular cannot be combined with --block" in err
+    code, _, err = run_qcorr(*base, "--molecular", "--molecules", "fragment", "--output", tmp_path / "f.nc")
+    assert code != 0 and "--molecules fragment needs bonds" in err
+    assert not (tmp_path / "b.nc").exists() and not (tmp_path / "f.nc").exists()
