@@ -1,0 +1,454 @@
+"""Tests of the Snakemake workflow (workflow/, config/) run as a user runs it.
+
+Every run happens in a temporary copy of the repository's tracked files (what a fresh
+clone holds), with ``python -m snakemake`` in a subprocess, so the repository itself is
+never written to.  The real runs are marked ``slow``.
+
+What is checked, and against what:
+
+* the README's demo command (parsed from README.md) fills ``results/``, and the merged
+  table equals the tables made by calling the ``qcorr`` commands directly on the same
+  inputs, with the options read from the sheet here, independently of the workflow's
+  own translation (``workflow/rules/common.smk``); frame blocks must give the
+  single-job result to rounding (issue 7);
+* a second run does nothing; touching one trajectory reruns only that system's jobs
+  and the merge;
+* ``snakemake -n`` and ``--lint`` are clean; the HTML report builds;
+* bad sheets stop before any job with a message naming the row and the column; no
+  value in the sheet reaches a shell unquoted;
+* the workflow works as a module of a host workflow, driven by the host's config.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shlex
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from qcorr.cli import main as qcorr_main
+
+REPO = Path(__file__).resolve().parents[1]
+RUN_TIMEOUT_S = 900  # hard limit per snakemake call; the demo itself takes about a minute
+
+
+# ----------------------------------------------------------------------------- helpers
+
+
+def tracked_files() -> list[str]:
+    """Files a fresh clone holds (git ls-files), or the workflow's folders without git."""
+    try:
+        listed = subprocess.run(["git", "ls-files", "-z"], cwd=REPO, capture_output=True,
+                                check=True, timeout=60).stdout.decode().split("\0")
+        return [f for f in listed if f and (REPO / f).is_file()]
+    except (OSError, subprocess.CalledProcessError):
+        return [str(p.relative_to(REPO)) for folder in ("workflow", "config", "resources")
+                for p in (REPO / folder).rglob("*") if p.is_file()]
+
+
+def fresh_copy(destination: Path) -> Path:
+    """Copy the tracked files (and the demo data, tracked or not yet) to *destination*."""
+    files = set(tracked_files())
+    files |= {str(p.relative_to(REPO)) for p in (REPO / "resources" / "demo").rglob("*")
+              if p.is_file() and "_offsets" not in p.name}
+    for name in sorted(files):
+        target = destination / name
+        target.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy2(REPO / name, target)
+    return destination
+
+
+def snakemake(args: list[str], cwd: Path, timeout: float = RUN_TIMEOUT_S):
+    """Run ``python -m snakemake ARGS`` in *cwd*; return the CompletedProcess."""
+    return subprocess.run([sys.executable, "-m", "snakemake", *args], cwd=cwd,
+                          capture_output=True, text=True, timeout=timeout, check=False)
+
+
+def explain(result) -> str:
+    return f"exit {result.returncode}\n--- stdout\n{result.stdout[-4000:]}\n--- stderr\n{result.stderr[-6000:]}"
+
+
+def readme_commands() -> list[str]:
+    """The two commands of the README's 'Start' section (bash code blocks, in order)."""
+    text = (REPO / "README.md").read_text(encoding="utf-8")
+    start = text.split("## Start", 1)[1].split("\n## ", 1)[0]
+    return [block.strip() for block in re.findall(r"```bash\n(.*?)```", start, flags=re.S)]
+
+
+def demo_sheet() -> pd.DataFrame:
+    return pd.read_csv(REPO / "config" / "systems.tsv", sep="\t", comment="#", dtype=str,
+                       keep_default_na=False)
+
+
+def job_counts(output: str) -> dict[str, int]:
+    """Rule -> job count from Snakemake's 'Job stats' table."""
+    counts = {}
+    block = output.split("Job stats:", 1)[-1] if "Job stats:" in output else ""
+    for line in block.splitlines():
+        parts = line.split()
+        if len(parts) == 2 and parts[1].isdigit() and parts[0] != "total":
+            counts[parts[0]] = int(parts[1])
+    return counts
+
+
+KEY_COLUMNS = ["system", "group", "method", "property", "temperature_K", "basis"]
+
+
+def assert_tables_equal(got: pd.DataFrame, expected: pd.DataFrame, rtol: float) -> None:
+    assert list(got.columns) == list(expected.columns)
+    got = got.sort_values(KEY_COLUMNS).reset_index(drop=True)
+    expected = expected.sort_values(KEY_COLUMNS).reset_index(drop=True)
+    assert len(got) == len(expected) > 0
+    for column in got.columns:
+        if pd.api.types.is_numeric_dtype(expected[column]):
+            pd.testing.assert_series_equal(got[column], expected[column], rtol=rtol,
+                                           atol=0.0, check_names=False)
+        else:
+            assert got[column].fillna("").tolist() == expected[column].fillna("").tolist(), column
+
+
+# ----------------------------------------------------------------------------- fixtures
+
+
+@pytest.fixture(scope="module")
+def demo_copy(tmp_path_factory) -> Path:
+    return fresh_copy(tmp_path_factory.mktemp("fresh_clone"))
+
+
+@pytest.fixture(scope="module")
+def demo_run(demo_copy):
+    """The README's demo command, run in a fresh copy (the pip part is done: we run in the
+    installed test environment)."""
+    first = readme_commands()[0]
+    install, run = (part.strip() for part in first.split("&&"))
+    assert install == 'pip install -e ".[workflow]"'
+    argv = shlex.split(run)
+    assert argv[0] == "snakemake"
+    started = time.monotonic()
+    result = snakemake(argv[1:], demo_copy)
+    assert result.returncode == 0, explain(result)
+    return demo_copy, result, time.monotonic() - started
+
+
+# ----------------------------------------------------------------------------- quick checks
+
+
+def test_readme_has_exactly_the_two_commands_and_ci_runs_the_test_one():
+    commands = readme_commands()
+    assert commands == ['pip install -e ".[workflow]" && snakemake --cores 2',
+                        'pip install -e ".[test]" && python -m pytest']
+    ci = (REPO / ".ci" / "run").read_text(encoding="utf-8")
+    assert re.search(r'pip install (--quiet )?-e "\.\[test\]"', ci)
+    assert re.search(r"python3? -m pytest", ci)
+    pyproject = (REPO / "pyproject.toml").read_text(encoding="utf-8")
+    for extra in ("workflow", "test"):
+        line = re.search(rf"^{extra} = \[(.*?)\]", pyproject, flags=re.M | re.S)
+        assert line and "snakemake>=9.14.8" in line.group(1), extra
+
+
+def test_snakefile_requires_snakemake_9_14_8():
+    text = (REPO / "workflow" / "Snakefile").read_text(encoding="utf-8")
+    assert 'min_version("9.14.8")' in text
+
+
+def test_every_rule_declares_log_benchmark_threads_resources_conda():
+    for smk in (REPO / "workflow" / "rules").glob("*.smk"):
+        text = smk.read_text(encoding="utf-8")
+        for rule in re.split(r"\n(?=rule )", text)[1:]:
+            name = rule.split(":", 1)[0]
+            for directive in ("log:", "benchmark:", "threads:", "resources:", "mem_mb=",
+                              "runtime=", "conda:"):
+                assert f"    {directive}" in rule or f"        {directive}" in rule, \
+                    f"{smk.name} {name} lacks {directive}"
+            shell = rule.split("shell:", 1)[1]
+            # every substituted path or value is quoted (':q'), except wildcards that the
+            # schema restricts to digits/safe characters and {threads}
+            for field in re.findall(r"\{([^}]+)\}", shell):
+                assert field.endswith(":q") or field in ("threads", "wildcards.block_index",
+                                                         "wildcards.block_count"), \
+                    f"{smk.name} {name}: unquoted {{{field}}}"
+
+
+def test_snakefmt_is_clean():
+    """The catalog's formatting check (snakefmt); skipped where snakefmt is not installed."""
+    snakefmt = shutil.which("snakefmt")
+    if snakefmt is None:
+        pytest.skip("snakefmt is not installed (pip install snakefmt)")
+    result = subprocess.run([snakefmt, "--check", "workflow"], cwd=REPO, capture_output=True,
+                            text=True, timeout=120, check=False)
+    assert result.returncode == 0, explain(result)
+
+
+def test_dry_run_and_lint_are_clean(demo_copy):
+    dry = snakemake(["-n", "--cores", "2"], demo_copy, timeout=300)
+    assert dry.returncode == 0, explain(dry)
+    counts = job_counts(dry.stdout + dry.stderr)
+    sheet = demo_sheet()
+    assert counts.get("harmonic_properties") == len(sheet)
+    assert counts.get("plots") == len(sheet)
+    lint = snakemake(["--lint"], demo_copy, timeout=300)
+    assert lint.returncode == 0, explain(lint)
+    assert "Congratulations" in lint.stdout + lint.stderr
+    assert not (demo_copy / "results").exists()
+
+
+# ----------------------------------------------------------------------------- the demo run
+
+
+def direct_tables(copy: Path, out: Path) -> pd.DataFrame:
+    """Call the qcorr commands directly, one system after the other, single job each."""
+    out.mkdir()
+    sheet = demo_sheet()
+    tables = []
+    for _, row in sheet.iterrows():
+        sid = row["system"]
+        spectrum = out / f"{sid}.nc"
+        argv = ["spectrum", "--topology", str(copy / row["topology"]), "--trajectory",
+                *[str(copy / t.strip()) for t in row["trajectory"].split(";") if t.strip()],
+                "--temperature", row["temperature_K"], "--output", str(spectrum),
+                "--progress", "never"]
+        if row.get("segment_ps", ""):
+            argv += ["--segment-ps", row["segment_ps"]]
+        for column, option in (("groups", "--group"), ("constraints", "--constraints"),
+                               ("constraints_per_molecule", "--constraints-per-molecule")):
+            for item in row.get(column, "").split(";"):
+                if item.strip():
+                    name, _, value = item.partition("=")
+                    argv += [option, f"{name.strip()}={value.strip()}"]
+        liquid = row.get("liquid", "").strip().lower() == "true"
+        if liquid:
+            argv.append("--molecular")
+        assert qcorr_main(argv) == 0, sid
+        extra = [t.strip() for t in row.get("temperatures_K", "").split(";") if t.strip()]
+        table = out / f"{sid}_harmonic.csv"
+        assert qcorr_main(["properties", str(spectrum), "--system", sid, "--quiet",
+                           "--temperatures", row["temperature_K"], *extra,
+                           "--output", str(table)]) == 0
+        tables.append(table)
+        if liquid:
+            table = out / f"{sid}_2pt.csv"
+            argv = ["liquid", str(spectrum), "--system", sid, "--output", str(table)]
+            if row.get("symmetry_number", ""):
+                argv += ["--symmetry-number", row["symmetry_number"]]
+            assert qcorr_main(argv) == 0
+            tables.append(table)
+    merged = out / "merged.csv"
+    assert qcorr_main(["merge", *map(str, tables), "--output", str(merged)]) == 0
+    return pd.read_csv(merged)
+
+
+@pytest.mark.slow
+def test_demo_fills_results(demo_run):
+    copy, _, seconds = demo_run
+    print(f"demo run took {seconds:.0f} s")
+    results = copy / "results"
+    assert (results / "corrected_properties.csv").stat().st_size > 0
+    assert (results / "corrected_properties.json").stat().st_size > 0
+    for sid in demo_sheet()["system"]:
+        for figure in ("spectrum", "cumulative"):
+            path = results / "plots" / f"{sid}_{figure}.svg"
+            assert path.read_bytes().lstrip().startswith((b"<?xml", b"<svg")), path
+        assert (results / "spectra" / f"{sid}.nc").is_file()
+        assert (copy / "logs" / "harmonic_properties" / f"{sid}.log").is_file()
+        assert (results / "benchmarks" / "harmonic_properties" / f"{sid}.tsv").is_file()
+    # temporary frame-block files are removed once combined
+    assert not list((results / "spectrum_blocks").rglob("*.nc")) if (
+        results / "spectrum_blocks").exists() else True
+
+
+@pytest.mark.slow
+def test_merged_table_equals_direct_commands(demo_run, tmp_path):
+    """Same inputs through the commands directly; blocks vs one job equal to rounding
+    (relative 1e-9: sums over segments in another order)."""
+    copy, _, _ = demo_run
+    workflow_table = pd.read_csv(copy / "results" / "corrected_properties.csv")
+    assert_tables_equal(workflow_table, direct_tables(copy, tmp_path / "direct"), rtol=1e-9)
+
+
+@pytest.mark.slow
+def test_second_run_does_nothing_and_touch_reruns_only_dependents(demo_run):
+    copy, _, _ = demo_run
+    again = snakemake(["--cores", "2"], copy)
+    assert again.returncode == 0, explain(again)
+    assert "Nothing to be done" in again.stdout + again.stderr
+
+    sheet = demo_sheet()
+    touched = sheet.iloc[0]
+    others = [sid for sid in sheet["system"] if sid != touched["system"]]
+    outputs = {p: p.stat().st_mtime_ns for p in (copy / "results").rglob("*") if p.is_file()}
+    trajectory = copy / touched["trajectory"].split(";")[0].strip()
+    later = time.time() + 2
+    os.utime(trajectory, (later, later))
+    rerun = snakemake(["--cores", "2"], copy)
+    assert rerun.returncode == 0, explain(rerun)
+    counts = job_counts(rerun.stdout + rerun.stderr)
+    assert counts.get("harmonic_properties") == 1 and counts.get("plots") == 1
+    assert counts.get("merge_tables") == 1
+    assert counts.get("spectrum", 0) + counts.get("combine_blocks", 0) == 1
+    for path, mtime in outputs.items():
+        if path.suffix == ".tsv" and "benchmarks" in path.parts:
+            continue
+        changed = path.stat().st_mtime_ns != mtime
+        if any(sid in path.name for sid in others):
+            assert not changed, f"{path} was remade although it does not depend on {trajectory}"
+        if touched["system"] in path.name and path.parent.name in ("spectra", "plots"):
+            assert changed, f"{path} was not remade"
+
+
+@pytest.mark.slow
+def test_report_builds(demo_run):
+    copy, _, _ = demo_run
+    result = snakemake(["--report", "results/report.html"], copy)
+    assert result.returncode == 0, explain(result)
+    html = (copy / "results" / "report.html").read_text(encoding="utf-8", errors="replace")
+    assert "corrected_properties" in html and "cumulative" in html
+
+
+# ----------------------------------------------------------------------------- bad sheets
+
+
+def sheet_with(copy: Path, rows: list[dict], name: str) -> str:
+    path = copy / "config" / name
+    pd.DataFrame(rows).to_csv(path, sep="\t", index=False)
+    return f"config/{name}"
+
+
+def copper_row(**changes) -> dict:
+    row = demo_sheet().iloc[0]
+    base = {"system": row["system"], "topology": row["topology"],
+            "trajectory": row["trajectory"], "temperature_K": row["temperature_K"]}
+    base.update(changes)
+    return base
+
+
+BAD_SHEETS = {
+    "missing file": ([copper_row(trajectory="resources/demo/nowhere.trr")],
+                     "row 1", "'trajectory'", "does not exist"),
+    "unsafe id": ([copper_row(system="cu;touch INJECTED")], "row 1", "'system'",
+                  "not a safe identifier"),
+    "temperature not above zero": ([copper_row(system="second"),
+                                    copper_row(temperature_K="0")],
+                                   "row 2", "'temperature_K'", "> 0"),
+    "empty selection": ([copper_row(groups="oxygen=name OW")], "row 1", "'groups'",
+                        "matches no atom"),
+    "unknown column": ([copper_row(colour="blue")], "header row", "'colour'",
+                       "unknown column"),
+}
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("case", list(BAD_SHEETS))
+def test_bad_sheet_fails_before_any_job(demo_copy, tmp_path, case):
+    rows, row_text, column_text, reason = BAD_SHEETS[case]
+    copy = fresh_copy(tmp_path / "copy") if (demo_copy / "results").exists() else demo_copy
+    sheet = sheet_with(copy, rows, f"bad_{case.replace(' ', '_')}.tsv")
+    result = snakemake(["--cores", "1", "--config", f"systems={sheet}"], copy, timeout=300)
+    assert result.returncode != 0
+    message = [line for line in (result.stdout + result.stderr).splitlines()
+               if line.startswith("systems sheet")]
+    assert message, explain(result)
+    assert row_text in message[0] and column_text in message[0] and reason in message[0]
+    assert sheet in message[0]
+    assert not (copy / "results").exists() and not (copy / "logs").exists()
+    assert not list(copy.rglob("INJECTED*"))
+
+
+@pytest.mark.slow
+def test_sheet_values_cannot_inject_shell_commands(tmp_path):
+    """Paths and selections full of shell syntax reach qcorr as literal arguments."""
+    copy = fresh_copy(tmp_path / "copy")
+    row = demo_sheet().iloc[0]
+    evil_dir = copy / "evil $(touch INJECTED_A) `touch INJECTED_B`"
+    evil_dir.mkdir()
+    topology = evil_dir / "top;touch INJECTED_C;.pdb"
+    trajectory = evil_dir / "traj'$(touch INJECTED_D)'.trr"
+    shutil.copy(copy / row["topology"], topology)
+    shutil.copy(copy / row["trajectory"].split(";")[0], trajectory)
+    rows = [
+        copper_row(system="evil_paths", topology=str(topology.relative_to(copy)),
+                   trajectory=str(trajectory.relative_to(copy)), segment_ps=row["segment_ps"]),
+        copper_row(system="evil_selection", groups="all=all' && touch INJECTED_E | $(touch INJECTED_F) `touch INJECTED_G` '",
+                   segment_ps=row["segment_ps"]),
+    ]
+    sheet = sheet_with(copy, rows, "evil.tsv")
+    config = copy / "config" / "evil.yaml"
+    config.write_text(f"systems: {sheet}\nspectrum:\n  check_selections: false\n")
+    result = snakemake(["results/spectra/evil_paths.nc", "results/spectra/evil_selection.nc",
+                        "--cores", "2", "--keep-going", "--configfile", str(config)], copy)
+    assert not list(copy.rglob("INJECTED*")), explain(result)
+    assert (copy / "results" / "spectra" / "evil_paths.nc").is_file(), explain(result)
+    # the selection arrived verbatim and was refused by qcorr (not run by a shell)
+    log = (copy / "logs" / "spectrum" / "evil_selection.log").read_text()
+    assert "qcorr: error:" in log
+    assert not (copy / "results" / "spectra" / "evil_selection.nc").exists()
+
+
+# ----------------------------------------------------------------------------- as a module
+
+
+@pytest.mark.slow
+def test_use_as_module_from_a_host_workflow(tmp_path):
+    host = tmp_path / "host"
+    row = demo_sheet().iloc[0]
+    data = host / "data"
+    data.mkdir(parents=True)
+    shutil.copy(REPO / row["topology"], data / "topology.pdb")
+    shutil.copy(REPO / row["trajectory"].split(";")[0], data / "trajectory.trr")
+    (host / "config").mkdir()
+    (host / "config" / "crystal.tsv").write_text(
+        "system\ttopology\ttrajectory\ttemperature_K\tsegment_ps\n"
+        f"crystal\tdata/topology.pdb\tdata/trajectory.trr\t{row['temperature_K']}\t"
+        f"{row['segment_ps']}\n")
+    (host / "config" / "config.yaml").write_text(
+        "qcorr:\n  systems: config/crystal.tsv\n  plots:\n    format: png\n")
+    (host / "Snakefile").write_text(f'''
+configfile: "config/config.yaml"
+
+
+module qcorr_workflow:
+    snakefile:
+        "{REPO / "workflow" / "Snakefile"}"
+    config:
+        config["qcorr"]
+    pathvars:
+        results="results/qcorr",
+        logs="logs/qcorr",
+        benchmarks="benchmarks/qcorr",
+
+
+use rule * from qcorr_workflow as qcorr_*
+
+
+rule count_rows:
+    input:
+        rules.qcorr_merge_tables.output.table,
+    output:
+        "results/row_count.txt",
+    run:
+        import pandas
+
+        with open(output[0], "w") as handle:
+            handle.write(str(len(pandas.read_csv(input[0]))))
+
+
+rule all:
+    default_target: True
+    input:
+        rules.qcorr_all.input,
+        "results/row_count.txt",
+''')
+    result = snakemake(["--cores", "2"], host)
+    assert result.returncode == 0, explain(result)
+    table = pd.read_csv(host / "results" / "qcorr" / "corrected_properties.csv")
+    assert set(table["system"]) == {"crystal"}
+    assert int((host / "results" / "row_count.txt").read_text()) == len(table)
+    assert (host / "results" / "qcorr" / "plots" / "crystal_spectrum.png").is_file()
+    assert (host / "logs" / "qcorr" / "spectrum" / "crystal.log").is_file()
+    assert (host / "benchmarks" / "qcorr" / "spectrum" / "crystal.tsv").is_file()
