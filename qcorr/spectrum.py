@@ -529,6 +529,11 @@ class SegmentAccumulator:
         if lagged is None:
             lagged = scipy.fft.irfft(corr_spectrum, n=2 * L, axis=-1)[:, :L]
         lagged /= np.arange(L, 0, -1, dtype=np.float64)
+        if not (np.all(np.isfinite(power)) and np.all(np.isfinite(lagged))):
+            raise TrajectoryError(
+                f"values are not finite (NaN or Inf) in frames {start}..{start + L - 1}, "
+                "counted from the first frame fed; check the trajectory there"
+            )
         self._power.append(power)
         self._correlation.append(lagged)
         self._first_frames.append(start)

@@ -675,6 +675,16 @@ def test_short_block_raises_sampling_error():
         acc.result()
 
 
+@pytest.mark.parametrize("overlap", [0.5, 0.25])
+def test_non_finite_values_name_the_frames(overlap):
+    s = SpectrumSettings(0.002, 10, overlap)
+    x = np.ones((40, 2, 3))
+    x[3, 1, 2] = np.nan
+    acc = SegmentAccumulator(s, np.ones(2), np.ones((1, 2), bool))
+    with pytest.raises(TrajectoryError, match=r"not finite \(NaN or Inf\) in frames 0\.\.9"):
+        feed(acc, x)
+
+
 def test_bad_frames_and_weights():
     s = SpectrumSettings(0.002, 10, 0.5)
     acc = SegmentAccumulator(s, np.ones(2), np.ones((1, 2), bool))
