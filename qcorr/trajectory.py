@@ -779,6 +779,8 @@ def stream_velocities(
     factor_v = opened.lammps_velocity_factor
     previous_time = None
     previous_positions = None
+    all_atoms = len(idx) == universe.atoms.n_atoms  # no virtual sites: skip fancy indexing
+    volume_cache: list = [None, 0.0]
     n_read = stop_sample - first_sample + extra
     for k, ts in enumerate(progress(_guarded(frames, opened, window, first_sample), total=n_read,
                                     desc="frames", mode=progress_mode)):
@@ -798,10 +800,12 @@ def stream_velocities(
                     f"frame {frame_no} of '{opened.files[1]}' has no velocities; pass "
                     "--velocities-from positions to derive them from positions by finite differences"
                 ) from None
-            v = np.asarray(raw[idx], dtype=np.float64) * factor_v
+            v = np.array(raw if all_atoms else raw[idx], dtype=np.float64)
+            if factor_v != 1.0:
+                v *= factor_v
             _check_finite(v, universe, idx, frame_no, opened, "velocity")
         else:
-            x = np.asarray(ts.positions[idx], dtype=np.float64)
+            x = np.array(ts.positions if all_atoms else ts.positions[idx], dtype=np.float64)
             _check_finite(x, universe, idx, frame_no, opened, "position")
             if previous_positions is None:
                 previous_positions = x
@@ -829,7 +833,9 @@ def stream_velocities(
             statistics.com_kinetic_sum += total_mass * float(com @ com)
             dims = box if source == "positions" else ts.dimensions
             if dims is not None and np.all(np.asarray(dims[:3]) > 0):
-                statistics.box_volume_sum_A3 += _box_volume(dims)
+                if volume_cache[0] is None or not np.array_equal(volume_cache[0], dims):
+                    volume_cache[:] = [np.array(dims), _box_volume(dims)]
+                statistics.box_volume_sum_A3 += volume_cache[1]
         yield v
 
 
@@ -861,6 +867,8 @@ def _box_volume(dimensions) -> float:
 
 
 def _check_finite(values, universe, idx, frame_no, opened, what) -> None:
+    if np.isfinite(values.sum()):  # fast path: the sum of finite values is finite (no overflow here)
+        return
     finite = np.isfinite(values)
     if not finite.all():
         channel = int(np.flatnonzero(~finite.all(axis=1))[0])
