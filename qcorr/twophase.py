@@ -496,6 +496,7 @@ def two_phase_component(
     symmetry_number: int = 1,
     hard_sphere_form: str = "published",
     gas_volume: str = "gas-particles",
+    dof_per_molecule: int | None = None,
 ) -> ComponentResult:
     """Split a translational or rotational DoS into HS gas + solid and weight both.
 
@@ -521,6 +522,10 @@ def two_phase_component(
         Rotational symmetry number σ.
     hard_sphere_form, gas_volume : str
         See :func:`hard_sphere_entropy` and the module notes.
+    dof_per_molecule : int, optional
+        Nominal degrees of freedom per molecule of this motion (3 for translation,
+        2 or 3 for rotation), which sets the gas dof 3fN or 2fN; default: the
+        DoS integral per molecule, rounded.
 
     Returns
     -------
@@ -541,7 +546,13 @@ def two_phase_component(
     s = np.asarray(dos_cm, dtype=float)
     n = float(molecule_count)
     dof = float(np.trapezoid(s, x))
-    dof_per_molecule = round(dof / n) if n > 0 else 0
+    if dof_per_molecule is None:
+        dof_per_molecule = round(dof / n) if n > 0 else 0
+    if dof_per_molecule not in (2, 3):
+        raise PhysicsError(
+            f"{component}: {dof_per_molecule} degrees of freedom per molecule (DoS integral "
+            f"{dof / n:.3g} per molecule); 2PT needs 3 (translation) or 2 or 3 (rotation)"
+        )
     s0 = float(s[0]) if zero_frequency_dos_cm is None else float(zero_frequency_dos_cm)
     if s0 < 0 or not math.isfinite(s0):
         raise PhysicsError(f"{component}: DoS at zero frequency is {s0} cm; it must be >= 0")
@@ -634,6 +645,7 @@ def two_phase_group(
     gas_volume: str = "gas-particles",
     rotational_fluidicity: str = "from-rotation",
     translation_zero_frequency_cm: float | None = None,
+    rotational_dof_per_molecule: int | None = None,
 ) -> GroupResult:
     """2PT totals for N molecules of one kind from their component DoS.
 
@@ -655,6 +667,8 @@ def two_phase_group(
         (default), or equal to the translational f.
     translation_zero_frequency_cm : float, optional
         Translational S̃(0) to use (e.g. from an MSD diffusion coefficient).
+    rotational_dof_per_molecule : int, optional
+        2 (linear) or 3; default: the rotational DoS integral per molecule, rounded.
 
     Returns
     -------
@@ -673,13 +687,14 @@ def two_phase_group(
     comps["translation"] = two_phase_component(
         "translation", wavenumber_cm, parts["translation"], **common,
         zero_frequency_dos_cm=translation_zero_frequency_cm,
-        hard_sphere_form=hard_sphere_form, gas_volume=gas_volume,
+        hard_sphere_form=hard_sphere_form, gas_volume=gas_volume, dof_per_molecule=3,
     )
     if parts.get("rotation") is not None:
         f_rot = comps["translation"].fluidicity if rotational_fluidicity == "same-as-translation" else None
         comps["rotation"] = two_phase_component(
             "rotation", wavenumber_cm, parts["rotation"], **common, fluidicity_value=f_rot,
             principal_moments_u_A2=principal_moments_u_A2, symmetry_number=symmetry_number,
+            dof_per_molecule=rotational_dof_per_molecule,
         )
     if parts.get("vibration") is not None:
         comps["vibration"] = vibrational_component(

@@ -140,6 +140,7 @@ class GroupInput:
     principal_moments: np.ndarray | None
     msd_diffusion_m2_per_s: float
     source: str
+    rotational_dof: int | None = None
 
 
 def _group_input(ds, g: int, name: str, path) -> GroupInput | str:
@@ -164,6 +165,7 @@ def _group_input(ds, g: int, name: str, path) -> GroupInput | str:
             name, count, float(ds["molecule_mass"].values[g]), parts, segs,
             ds["principal_moments"].values[g] if rot_dof > 0 else None,
             float(ds["self_diffusion_msd"].values[g]), "molecular decomposition",
+            int(round(rot_dof)) if rot_dof > 0 else None,
         )
     atoms = int(ds["atom_count"].values[g])
     molecules = int(ds["molecule_count"].values[g])
@@ -355,7 +357,7 @@ def run(args: argparse.Namespace) -> int:
                        volume_A3=volume, principal_moments_u_A2=gin.principal_moments,
                        symmetry_number=sigma, hard_sphere_form=args.hard_sphere_entropy,
                        gas_volume=args.gas_volume, rotational_fluidicity=args.rotational_fluidicity,
-                       translation_zero_frequency_cm=s0)
+                       translation_zero_frequency_cm=s0, rotational_dof_per_molecule=gin.rotational_dof)
         result = twophase.two_phase_group(wavenumber, gin.parts, **options)
         seg_results = [
             twophase.two_phase_group(wavenumber, {k: v[s] for k, v in gin.part_segments.items()}, **options)
