@@ -104,3 +104,16 @@ def test_output_may_not_overwrite_an_input(bad_files, run_qcorr):
     code, _, stderr = run_qcorr("spectrum", *_base(bad_files), "--output", bad_files["good"])
     assert code != 0 and "is also an input file" in stderr
     assert bad_files["good"].read_bytes() == before
+
+
+def test_unwritable_output_directory_fails_before_reading(bad_files, tmp_path, run_qcorr, monkeypatch):
+    # directory modes do not bind root, so the permission answer is simulated
+    import os
+
+    locked = tmp_path / "locked"
+    locked.mkdir()
+    real_access = os.access
+    monkeypatch.setattr(os, "access", lambda p, mode: False if str(p) == str(locked) else real_access(p, mode))
+    code, _, stderr = run_qcorr("spectrum", *_base(bad_files), "--output", locked / "sub" / "s.nc")
+    assert code != 0 and f"cannot write in '{locked}'" in stderr
+    assert list(locked.iterdir()) == []

@@ -31,6 +31,9 @@ def run(args: argparse.Namespace) -> int:
     for name in args.blocks:
         if Path(name).resolve() == out:
             raise ConfigError(f"--output {args.output} is also a block file; choose another name")
+    from qcorr.cli.spectrum_command import check_output_writable
+
+    check_output_writable(args.output)
     datasets = [read_spectrum(name) for name in args.blocks]
     combined = combine_blocks(datasets, list(args.blocks),
                               getattr(args, "command_line", "qcorr combine"))

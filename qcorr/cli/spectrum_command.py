@@ -157,6 +157,18 @@ def _check_arguments(args: argparse.Namespace) -> None:
     for name in [args.topology, *args.trajectory]:
         if Path(name).resolve() == out:
             raise ConfigError(f"--output {args.output} is also an input file; choose another name")
+    check_output_writable(args.output)
+
+
+def check_output_writable(output: str) -> None:
+    """Fail before the frame loop if the output's directory (or its nearest existing parent) is not writable."""
+    import os
+
+    parent = Path(output).resolve().parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise ConfigError(f"--output {output}: cannot write in '{parent}'; choose a writable directory")
 
 
 def run(args: argparse.Namespace) -> int:
