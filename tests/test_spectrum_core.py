@@ -386,9 +386,11 @@ def test_ornstein_uhlenbeck_spectrum_band_averages(ornstein_uhlenbeck_run):
     # Oracle: exact AR(1) spectrum (Priestley 1981) times 3N m sigma^2 (= 3N kT).
     # Statistics: each bin of one component's periodogram is a scaled chi^2 with 2 dof (relative
     # sd 1); the estimate averages K = 3 x 200 components x 100 half-overlapping Hann segments.
-    # Half-overlapped Hann segments are nearly independent (Welch 1967: variance ratio ~1.04 for
-    # 50 % overlap), so the per-bin relative sd is ~ 1/sqrt(60000) = 0.41 %. Averaging a band of
-    # 16 bins (neighbouring Hann bins correlate, ~8 independent values) gives ~0.15 %.
+    # Consecutive half-overlapped periodic-Hann segments correlate with rho = sum w_n w_{n+L/2} /
+    # sum w_n^2 = (L/8)/(3L/8) = 1/3 (Welch 1967), so the variance of the average is
+    # (1 + 2 rho^2) = 1.22 times that of independent segments: per-bin relative sd
+    # ~ sqrt(1.22/60000) = 0.45 %. Averaging a band of 16 bins (neighbouring Hann bins
+    # correlate, ~8 independent values) gives ~0.16 %.
     # The window bias (spectrum convolved with the Hann kernel, computed exactly below) is
     # < 0.5 % for gamma L dt = 51. The 2 % tolerance is bias + > 10 sd.
     run = ornstein_uhlenbeck_run
@@ -436,10 +438,11 @@ def test_ornstein_uhlenbeck_zero_frequency_green_kubo(ornstein_uhlenbeck_run):
 
 
 def test_ornstein_uhlenbeck_correlation_is_exponential(ornstein_uhlenbeck_run):
-    # Oracle: C(t) = 3N m sigma^2 exp(-gamma t) (Uhlenbeck & Ornstein 1930); the segment-averaged
-    # unbiased estimate at lag k averages 100 x 600 x (L-k) products; relative SE at small lags
-    # ~ sqrt((1+a^2)/(1-a^2)/(600 x 100 x 512)) ~ 0.2 %; tolerance 1 % of C(0) over the first
-    # 50 lags (the sd of the absolute error does not grow beyond that of C(0)).
+    # Oracle: C(t) = 3N m sigma^2 exp(-gamma t) (Uhlenbeck & Ornstein 1930). Statistics: by
+    # Bartlett's formula for an AR(1) (Priestley 1981, section 5.3.3) the sample autocovariance
+    # at small lags has var/C(0)^2 ~ (2/N)(1+a^2)/(1-a^2) = 20/N with a = 0.905, and
+    # N = 600 components x 25,856 frames (overlapping segments reuse the same frames), so the sd
+    # is ~ 0.11 % of C(0); the tolerance, 1 % of C(0) over the first 50 lags, is ~ 9 sd.
     run = ornstein_uhlenbeck_run
     r = run["result"]
     c = r.correlation[0].mean(axis=0)
