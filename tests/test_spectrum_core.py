@@ -366,9 +366,15 @@ def ornstein_uhlenbeck_run():
     acc = SegmentAccumulator(s, np.full(n_atoms, m_u), np.ones((1, n_atoms), bool))
     v = rng.standard_normal((n_atoms, 3)) * sigma  # stationary start
     kick = math.sqrt(1.0 - a * a) * sigma
-    for _ in range(n_frames):
-        acc.add_frame(v)
-        v = a * v + kick * rng.standard_normal((n_atoms, 3))
+    acc.add_frame(v)
+    remaining = n_frames - 1
+    while remaining:  # v[n] = a v[n-1] + kick xi[n], in chunks of frames
+        k = min(2048, remaining)
+        xi = rng.standard_normal((k, n_atoms, 3))
+        chunk, _ = scipy.signal.lfilter([kick], [1.0, -a], xi, axis=0, zi=(a * v)[None])
+        feed(acc, chunk)
+        v = chunk[-1]
+        remaining -= k
     return {
         "result": acc.result(),
         "a": a,
