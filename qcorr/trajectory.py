@@ -121,6 +121,24 @@ class OpenedTrajectory:
     lammps_velocity_factor: float = 1.0
     is_lammps_dump: bool = False
 
+    @property
+    def label(self) -> str:
+        """The trajectory file(s) for messages: ``'a.trr'`` or ``'a.trr' + 2 more files``."""
+        extra = len(self.files) - 2
+        return f"'{self.files[1]}'" + (f" + {extra} more files" if extra > 0 else "")
+
+    def where(self, frame: int) -> str:
+        """``frame F of 'file'``; for several files also the frame number inside its own file."""
+        readers = getattr(self.universe.trajectory, "readers", None)
+        if not readers or len(readers) < 2:
+            return f"frame {frame} of '{self.files[1]}'"
+        local = frame
+        for reader in readers:
+            if local < reader.n_frames:
+                return f"frame {frame} (frame {local} of '{reader.filename}')"
+            local -= reader.n_frames
+        return f"frame {frame} of {self.label}"
+
 
 def _format_for(path: Path, given: str | None) -> str | None:
     if given:
@@ -640,7 +658,7 @@ def frame_window(
     rng = range(*slice(start, stop, step).indices(n_total))
     if len(rng) < 2:
         raise SamplingError(
-            f"the frame window (--start {start} --stop {stop} --step {step}) of '{opened.files[1]}' "
+            f"the frame window (--start {start} --stop {stop} --step {step}) of {opened.label} "
             f"holds {len(rng)} of its {n_total} frames; at least two are needed"
         )
     factor = opened.lammps_time_factor
@@ -655,7 +673,7 @@ def frame_window(
         # find the first bad frame for a precise message (error path only)
         check_intervals(opened, window, reference_ps=t1 - t0)
         raise SamplingError(
-            f"the time stamps of '{opened.files[1]}' are not evenly spaced: frames "
+            f"the time stamps of {opened.label} are not evenly spaced: frames "
             f"{rng[0]}..{rng[-1]} span {t_last - t0:g} ps, but the first interval is {t1 - t0:g} ps"
         )
     return window
@@ -676,7 +694,7 @@ def _check_one_interval(opened, window, index, interval, reference, time_ps) -> 
     tol = INTERVAL_TOLERANCE * abs(reference) + _float32_spacing(time_ps)
     if not abs(interval - reference) <= tol:
         raise SamplingError(
-            f"frame {window.frame(index)} of '{opened.files[1]}' (t = {time_ps:g} ps) follows the "
+            f"{opened.where(window.frame(index))} (t = {time_ps:g} ps) follows the "
             f"previous frame by {interval:.4g} ps instead of the regular {reference:.4g} ps (missing, "
             "repeated or unevenly spaced frames); choose a window of evenly spaced frames with "
             "--start/--stop/--step"
@@ -797,7 +815,7 @@ def stream_velocities(
                 raw = ts.velocities
             except NoDataError:
                 raise TrajectoryError(
-                    f"frame {frame_no} of '{opened.files[1]}' has no velocities; pass "
+                    f"{opened.where(frame_no)} has no velocities; pass "
                     "--velocities-from positions to derive them from positions by finite differences"
                 ) from None
             v = np.array(raw if all_atoms else raw[idx], dtype=np.float64)
@@ -850,7 +868,7 @@ def _guarded(frames, opened: OpenedTrajectory, window: FrameWindow, first_sample
             return
         except Exception as err:
             message = (
-                f"cannot read frame {window.frame(first_sample + k)} of '{opened.files[1]}' "
+                f"cannot read {opened.where(window.frame(first_sample + k))} "
                 f"({_first_line(err)}); the file is truncated or corrupt there: use --stop to "
                 "end the window before it, or repair the file"
             )
@@ -873,7 +891,7 @@ def _check_finite(values, universe, idx, frame_no, opened, what) -> None:
     if not finite.all():
         channel = int(np.flatnonzero(~finite.all(axis=1))[0])
         raise TrajectoryError(
-            f"frame {frame_no} of '{opened.files[1]}' has a non-finite {what} (NaN or Inf) for "
+            f"{opened.where(frame_no)} has a non-finite {what} (NaN or Inf) for "
             f"{_atom_label(universe, idx, channel)}; the file is corrupt there, choose a window "
             "before it with --stop"
         )

@@ -216,3 +216,29 @@ def test_progress_bar_only_when_asked_or_on_a_terminal(oscillator_files, tmp_pat
     (tmp_path / "p.nc").unlink()
     code, _, err = run_qcorr(*args)  # auto: stderr is captured here, not a terminal
     assert code == 0 and "frames:" not in err
+
+
+def test_several_trajectory_files_read_as_one(single_job, oscillator_scenario, oscillator_files, tmp_path, run_qcorr):
+    # the same 1000 frames split over two TRR files must give the single-file spectrum exactly
+    scn = oscillator_scenario
+    cut = 437
+    parts = []
+    for name, sl in (("part1", slice(0, cut)), ("part2", slice(cut, None))):
+        piece = dataclasses.replace(scn, positions=scn.positions[sl], velocities=scn.velocities[sl], times_ps=scn.times_ps[sl])
+        parts.append(synthetic.write_trr(piece, tmp_path / f"{name}.trr"))
+    out = tmp_path / "chain.nc"
+    args = _args(oscillator_files, None, "--output", out)
+    i = args.index("--trajectory")
+    args[i + 1 : i + 2] = parts
+    code, _, err = run_qcorr(*args)
+    assert code == 0, err
+    a, b = read_spectrum(single_job), read_spectrum(out)
+    xr.testing.assert_allclose(a["vdos"], b["vdos"], rtol=1e-12)
+    assert [f["name"] for f in json.loads(b.attrs["input_files"])] == ["dimers.gro", "part1.trr", "part2.trr"]
+    # a gap at the junction is named with the frame inside its own file
+    gap = dataclasses.replace(scn, positions=scn.positions[cut + 1:], velocities=scn.velocities[cut + 1:], times_ps=scn.times_ps[cut + 1:])
+    args[i + 2] = synthetic.write_trr(gap, tmp_path / "part2_gap.trr")
+    args[args.index("--output") + 1] = tmp_path / "gap.nc"
+    code, _, err = run_qcorr(*args)
+    assert code != 0 and f"frame {cut} (frame 0 of '{tmp_path / 'part2_gap.trr'}')" in err
+    assert not (tmp_path / "gap.nc").exists()
