@@ -308,6 +308,12 @@ def taper_window(settings: SpectrumSettings) -> NDArray[np.float64]:
 class SegmentAccumulator:
     """Streams frames; holds one segment (L x n_channels x n_components, float64) plus FFT workspace.
 
+    Memory does not depend on the number of frames: with 50 % overlap the frame
+    buffer is half a segment (two halves when a background thread is used) and the
+    transforms of the previous half take about one segment; otherwise the buffer is
+    one segment.  The FFT workspace is a few hundred kB per chunk of channels.  Only
+    the per-segment results (n_groups x (L/2 + 1 + L) numbers per segment) grow.
+
     Parameters
     ----------
     settings : SpectrumSettings
