@@ -222,3 +222,21 @@ def write_lammps_dump(scn: Scenario, path: Path, *, units: str, md_timestep: flo
             )
     Path(path).write_text("\n".join(lines) + "\n")
     return path
+
+
+def write_lammps_data(scn: Scenario, path: Path) -> Path:
+    """LAMMPS data file (``atom_style full``: id molecule type charge x y z) with a Masses section.
+
+    Layout from the LAMMPS manual, "read_data" command; one atom type (1) of the scenario's mass.
+    """
+    x = scn.positions[0]
+    lines = [
+        "LAMMPS data file written by tests/synthetic.py", "",
+        f"{scn.n_atoms} atoms", "1 atom types", "",
+        *[f"0.0 {scn.box_A:.6f} {a}lo {a}hi" for a in "xyz"], "",
+        "Masses", "", f"1 {scn.masses[0]:.6f}", "",
+        "Atoms # full", "",
+        *[f"{i + 1} {scn.resids[i]} 1 0.0 {x[i, 0]:.8f} {x[i, 1]:.8f} {x[i, 2]:.8f}" for i in range(scn.n_atoms)],
+    ]
+    Path(path).write_text("\n".join(lines) + "\n")
+    return path

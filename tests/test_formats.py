@@ -42,17 +42,22 @@ def _write(fmt, scn, d):
         dump = synthetic.write_lammps_dump(scn, d / "t.lammpstrj", units="metal", md_timestep=0.0005, steps_per_frame=4)
         return ["--topology", dump, "--trajectory", dump, "--lammps-units", "metal",
                 "--reader-option", "dt=0.0005", "--mass", f"1={OSC_MASS_U}"]
+    if fmt == "lammps_data_and_dump":  # masses and molecules from a LAMMPS data file (atom_style full)
+        data = synthetic.write_lammps_data(scn, d / "dimers.data")
+        dump = synthetic.write_lammps_dump(scn, d / "t.lammpstrj", units="metal", md_timestep=0.001, steps_per_frame=2)
+        return ["--topology", data, "--trajectory", dump, "--lammps-units", "metal", "--reader-option", "dt=0.001",
+                "--reader-option", "atom_style=id resid type charge x y z"]
     raise AssertionError(fmt)
 
 
-@pytest.mark.parametrize("fmt", ["trr", "amber_netcdf", "h5md", "lammps_real", "lammps_metal"])
+@pytest.mark.parametrize("fmt", ["trr", "amber_netcdf", "h5md", "lammps_real", "lammps_metal", "lammps_data_and_dump"])
 def test_analytic_spectrum_in_every_format(fmt, oscillator_scenario, tmp_path, run_qcorr):
     scn = oscillator_scenario
     inputs = _write(fmt, scn, tmp_path)
     out = tmp_path / "spectrum.nc"
     groups = []
     for k in range(len(OSC_BINS)):
-        groups += ["--group", f"dimer{k + 1}=resid {k + 1}" if not fmt.startswith("lammps") else f"dimer{k + 1}=index {2 * k} {2 * k + 1}"]
+        groups += ["--group", f"dimer{k + 1}=index {2 * k} {2 * k + 1}" if fmt in ("lammps_real", "lammps_metal") else f"dimer{k + 1}=resid {k + 1}"]
     code, _, err = run_qcorr(
         "spectrum", *inputs, "--temperature", OSC_TEMPERATURE_K, "--output", out,
         "--segment-ps", OSC_SEGMENT_PS, "--progress", "never", *groups,
