@@ -238,6 +238,8 @@ def block_range(n_segments: int, block_index: int, block_count: int) -> tuple[in
     ------
     ConfigError
         Naming ``--block`` if the index is out of range or a block would be empty.
+    SamplingError
+        If there is no segment at all.
     """
     if block_count < 1:
         raise ConfigError(f"--block: the number of blocks must be at least 1, got {block_count}")
@@ -245,6 +247,10 @@ def block_range(n_segments: int, block_index: int, block_count: int) -> tuple[in
         raise ConfigError(
             f"--block: block {block_index + 1} of {block_count} does not exist; "
             f"use 1..{block_count}"
+        )
+    if n_segments < 1:
+        raise SamplingError(
+            "the frame window holds no full segment; shorten --segment-ps or give more frames"
         )
     if block_count > n_segments:
         raise ConfigError(

@@ -667,6 +667,8 @@ def test_block_errors_name_the_option():
         block_range(2, 0, 3)
     with pytest.raises(ConfigError, match="--block"):
         block_range(2, 0, 0)
+    with pytest.raises(SamplingError, match="no full segment.*--segment-ps"):
+        block_range(0, 0, 1)
 
 
 def test_too_few_frames_raises_sampling_error():
