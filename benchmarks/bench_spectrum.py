@@ -1,6 +1,6 @@
 """Cost of the streaming spectrum estimator relative to a bare MDAnalysis read.
 
-Writes a generated trajectory (argon-like atoms whose velocities follow a seeded
+Writes a generated trajectory (argon-like atoms at 300 K whose velocities follow a seeded
 first-order autoregressive process, positions drifting with them) to a
 temporary directory as a GROMACS TRR file with velocities, then times in
 separate subprocesses:
@@ -57,9 +57,12 @@ def write_trajectory(
     u.add_TopologyAttr("masses", np.full(n_atoms, 39.948))
     box = 3.4 * n_atoms ** (1.0 / 3.0) * 1.2
     u.dimensions = [box, box, box, 90.0, 90.0, 90.0]
-    sigma = (
-        3.5  # Angstrom/ps, about sqrt(kT/m) for argon near 600 K; the value does not matter here
-    )
+    # sqrt(kT/m) for argon at 300 K in Angstrom/ps, so that `qcorr spectrum --temperature 300`
+    # sees a consistent kinetic temperature
+    from qcorr import constants
+
+    u_A2_per_ps2 = constants.atomic_mass_kg * (constants.angstrom_m / constants.picosecond_s) ** 2
+    sigma = float(np.sqrt(constants.boltzmann_J_per_K * 300.0 / u_A2_per_ps2 / 39.948))
     a = float(np.exp(-5.0 * timestep_ps))  # velocity memory ~0.2 ps
     kick = sigma * np.sqrt(1.0 - a * a)
     v = rng.standard_normal((n_atoms, 3)) * sigma
