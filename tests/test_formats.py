@@ -50,7 +50,12 @@ def _write(fmt, scn, d):
     raise AssertionError(fmt)
 
 
-@pytest.mark.parametrize("fmt", ["trr", "amber_netcdf", "h5md", "lammps_real", "lammps_metal", "lammps_data_and_dump"])
+@pytest.mark.parametrize(
+    "fmt",
+    # MDAnalysis' H5MD reader takes ~15 ms per frame here (h5py per-frame reads), hence "slow"
+    ["trr", "amber_netcdf", pytest.param("h5md", marks=pytest.mark.slow), "lammps_real", "lammps_metal",
+     "lammps_data_and_dump"],
+)
 def test_analytic_spectrum_in_every_format(fmt, oscillator_scenario, tmp_path, run_qcorr):
     scn = oscillator_scenario
     inputs = _write(fmt, scn, tmp_path)
