@@ -686,14 +686,16 @@ def test_short_block_raises_sampling_error():
         acc.result()
 
 
-@pytest.mark.parametrize("overlap", [0.5, 0.25])
-def test_non_finite_values_name_the_frames(overlap):
+@pytest.mark.parametrize(("overlap", "threads"), [(0.5, 1), (0.25, 1), (0.5, 2)])
+def test_non_finite_values_name_the_frames(overlap, threads):
+    # with a background thread the error surfaces at the next half segment or at result()
     s = SpectrumSettings(0.002, 10, overlap)
     x = np.ones((40, 2, 3))
     x[3, 1, 2] = np.nan
-    acc = SegmentAccumulator(s, np.ones(2), np.ones((1, 2), bool))
+    acc = SegmentAccumulator(s, np.ones(2), np.ones((1, 2), bool), workers=threads)
     with pytest.raises(TrajectoryError, match=r"not finite \(NaN or Inf\) in frames 0\.\.9"):
         feed(acc, x)
+        acc.result()
 
 
 def test_bad_frames_and_weights():
