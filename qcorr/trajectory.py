@@ -669,7 +669,13 @@ def frame_window(
     dt = (t_last - t0) / (n - 1)
     window = FrameWindow(rng.start, rng.stop, rng.step, dt, t0)
     tol = INTERVAL_TOLERANCE * abs(dt) + _float32_spacing(t_last)
-    if not dt > 0 or abs((t1 - t0) - dt) > tol:
+    if not dt > 0:
+        raise SamplingError(
+            f"the time stamps of {opened.label} do not increase (frame {rng[0]}: {t0:g} ps, frame "
+            f"{rng[-1]}: {t_last:g} ps); the file may carry no times: give the frame spacing with "
+            "--reader-option dt=PS if the reader accepts it"
+        )
+    if abs((t1 - t0) - dt) > tol:
         # find the first bad frame for a precise message (error path only)
         check_intervals(opened, window, reference_ps=t1 - t0)
         raise SamplingError(

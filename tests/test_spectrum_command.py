@@ -242,3 +242,20 @@ def test_several_trajectory_files_read_as_one(single_job, oscillator_scenario, o
     code, _, err = run_qcorr(*args)
     assert code != 0 and f"frame {cut} (frame 0 of '{tmp_path / 'part2_gap.trr'}')" in err
     assert not (tmp_path / "gap.nc").exists()
+
+
+def test_blocks_with_finite_differences(oscillator_files, tmp_path, run_qcorr):
+    # positions mode reads one frame more than it has velocity samples; blocks must still join up
+    single = tmp_path / "fd.nc"
+    assert run_qcorr(*_args(oscillator_files, None, "--velocities-from", "positions", "--output", single))[0] == 0
+    blocks = []
+    for i in (1, 2):
+        blocks.append(tmp_path / f"fd{i}.nc")
+        code, _, err = run_qcorr(*_args(oscillator_files, None, "--velocities-from", "positions",
+                                        "--block", f"{i}-of-2", "--output", blocks[-1]))
+        assert code == 0, err
+    joined = tmp_path / "joined.nc"
+    assert run_qcorr("combine", *blocks, "--output", joined)[0] == 0
+    a, b = read_spectrum(single), read_spectrum(joined)
+    xr.testing.assert_allclose(a["vdos_segments"], b["vdos_segments"], rtol=1e-12)
+    assert a.attrs["frames_used"] == b.attrs["frames_used"] and a.attrs["statistics_frames"] == b.attrs["statistics_frames"]

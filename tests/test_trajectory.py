@@ -178,3 +178,11 @@ def test_lammps_unit_factors_follow_the_lammps_manual():
     # LAMMPS manual, "units" command: real -> time fs, velocity A/fs; metal -> ps, A/ps
     assert trj.LAMMPS_UNIT_STYLES["real"] / sc.pico == pytest.approx(1e-3)
     assert trj.LAMMPS_UNIT_STYLES["metal"] / sc.pico == pytest.approx(1.0)
+
+
+def test_time_stamps_that_do_not_increase(tmp_path):
+    scn = synthetic.diatomic_oscillators([5e12], n_frames=10, timestep_ps=0.002, temperature_K=300)
+    flat = dataclasses.replace(scn, times_ps=np.zeros(10))
+    opened = trj.open_trajectory(synthetic.write_gro(flat, tmp_path / "d.gro"), [synthetic.write_trr(flat, tmp_path / "d.trr")])
+    with pytest.raises(SamplingError, match=r"'.*d\.trr' do not increase.*--reader-option dt=PS"):
+        trj.frame_window(opened)

@@ -273,7 +273,8 @@ def run(args: argparse.Namespace) -> int:
         "velocity_source": "finite_difference" if positions else "stored",
         "finite_difference_correction": (
             "forward differences of minimum-image displacements; spectrum divided by "
-            "sinc^2(pi nu dt) before normalisation" if positions else "none"
+            "sinc^2(pi nu dt) before normalisation; vacf is that of the differences, uncorrected"
+            if positions else "none"
         ),
         "lammps_units": args.lammps_units or "",
         "reader_options": json.dumps(reader_options, sort_keys=True),
