@@ -24,6 +24,7 @@ import subprocess
 import uuid
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -154,12 +155,16 @@ def prepare_workdir(path: Path) -> Path:
     return path
 
 
+#: the workflow's merged property table (relative to the working directory); the test
+#: asks for this target only, so figures and the report (tested in test_workflow.py) are skipped
+MERGED_TABLE = "results/corrected_properties.csv"
+
+
 def merged_table(workdir: Path) -> pd.DataFrame:
-    """The workflow's merged property table (the only CSV under results/ named like it)."""
-    candidates = sorted(workdir.glob("results/**/*.csv"))
-    merged = [p for p in candidates if "merged" in p.name or p.parent.name == "results"]
-    assert merged, f"no merged table under {workdir / 'results'}; found {candidates}"
-    return pd.read_csv(merged[0], keep_default_na=False)
+    """Read the merged property table; empty cells become NaN so number columns stay numeric."""
+    path = workdir / MERGED_TABLE
+    assert path.is_file(), f"the run did not write {path}"
+    return pd.read_csv(path)
 
 
 def test_batch_job_sees_this_python(slurm_cluster, tmp_path):
@@ -188,7 +193,7 @@ def test_demo_workflow_on_slurm_equals_local_run(slurm_cluster, tmp_path):
     if not SNAKEFILE.exists():
         pytest.fail(f"{SNAKEFILE} is missing")
     cores = str(min(2, os.cpu_count() or 1))
-    common = ["snakemake", "--snakefile", str(SNAKEFILE), "--show-failed-logs", "--printshellcmds"]
+    common = ["snakemake", MERGED_TABLE, "--snakefile", str(SNAKEFILE), "--show-failed-logs"]
 
     local_dir = prepare_workdir(tmp_path / "local")
     local_log = tmp_path / "local.log"
@@ -227,8 +232,23 @@ def test_demo_workflow_on_slurm_equals_local_run(slurm_cluster, tmp_path):
     local_table = merged_table(local_dir)
     cluster_table = merged_table(cluster_dir)
     assert len(local_table) > 0
-    # Same code, same inputs, same settings: the two runs must agree to rounding.  Numbers
-    # are compared at 1e-12 relative (the CSV holds repr-exact floats); text cells exactly.
-    pd.testing.assert_frame_equal(
-        cluster_table, local_table, check_exact=False, rtol=1e-12, atol=0.0
+    assert {"system", "group", "property", "quantum"} <= set(local_table.columns)
+    assert list(cluster_table.columns) == list(local_table.columns)
+    assert len(cluster_table) == len(local_table) > 0
+    # Same code, same inputs, same settings: the two runs must agree to rounding
+    # (floating-point sums may be ordered differently, e.g. in threaded FFTs).  Text cells
+    # must be equal; empty cells empty in both; numbers equal to 1e-12 of the largest
+    # number in the same row (a correction that nearly cancels is judged on the scale of
+    # the classical and quantum values it came from).
+    numeric = local_table.select_dtypes("number").columns
+    text = [c for c in local_table.columns if c not in numeric]
+    pd.testing.assert_frame_equal(cluster_table[text].fillna(""), local_table[text].fillna(""))
+    a = cluster_table[numeric].to_numpy(dtype=float)
+    b = local_table[numeric].to_numpy(dtype=float)
+    assert (np.isnan(a) == np.isnan(b)).all(), "empty cells differ between the runs"
+    scale = np.nanmax(np.abs(b), axis=1, initial=0.0)[:, None]
+    difference = np.where(np.isnan(b), 0.0, np.abs(a - b))
+    worst = np.unravel_index(np.argmax(difference - 1e-12 * scale), difference.shape)
+    assert (difference <= 1e-12 * scale).all(), (
+        f"row {worst[0]} column {numeric[worst[1]]!r}: SLURM {a[worst]!r} vs local {b[worst]!r}"
     )
