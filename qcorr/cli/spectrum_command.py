@@ -41,10 +41,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     io.add_argument("--output", required=True, metavar="FILE.nc",
                     help="spectrum file to write (NetCDF-4); written only when everything succeeded")
     io.add_argument("--topology-format", metavar="FMT", default=None,
-                    help="MDAnalysis topology format name (default: from the file suffix)")
+                    help="MDAnalysis topology format name; None: guessed from the file suffix")
     io.add_argument("--trajectory-format", metavar="FMT", default=None,
-                    help="MDAnalysis trajectory format name (default: from the suffix; "
-                         ".lammpstrj/.lammpsdump/.dump are read as LAMMPSDUMP)")
+                    help="MDAnalysis trajectory format name; None: guessed from the suffix "
+                         "(.lammpstrj/.lammpsdump/.dump are read as LAMMPSDUMP)")
     io.add_argument("--reader-option", action="append", default=[], metavar="KEY=VALUE",
                     help="keyword passed to MDAnalysis.Universe (repeatable); numbers and "
                          "true/false are converted; for LAMMPS dumps give dt=MD time step in "
@@ -55,9 +55,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
     frames = parser.add_argument_group("frames")
     frames.add_argument("--start", type=int, default=None, metavar="N",
-                        help="first trajectory frame used (0-based index; default: first)")
+                        help="first trajectory frame used (0-based frame index); None: the first")
     frames.add_argument("--stop", type=int, default=None, metavar="N",
-                        help="frame index to stop before (default: end of trajectory)")
+                        help="frame index to stop before; None: the end of the trajectory")
     frames.add_argument("--step", type=int, default=1, metavar="N",
                         help="use every N-th frame (frames), the time step becomes N times longer")
     frames.add_argument("--velocities-from", choices=("stored", "positions"), default="stored",
