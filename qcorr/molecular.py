@@ -96,6 +96,9 @@ class MoleculeLayout:
         Molecules all of whose atoms belong to the group.
     group_whole : bool array (n_groups,)
         True if the group consists of whole molecules only.
+    contiguous : bool
+        True if every molecule's atoms are consecutive channels in molecule order
+        (then no reordering is needed).
     """
 
     molecule_of_channel: NDArray[np.int64]
@@ -108,6 +111,7 @@ class MoleculeLayout:
     rotational_dof: NDArray[np.int64]
     group_molecules: NDArray[np.bool_]
     group_whole: NDArray[np.bool_]
+    contiguous: bool = False
 
     @property
     def n_molecules(self) -> int:
@@ -155,7 +159,49 @@ def _minimum_image(d: NDArray[np.float64], box: ArrayLike | None) -> NDArray[np.
     return minimize_vectors(d.astype(np.float32), box.astype(np.float32)).astype(np.float64)
 
 
+def _jacobi(a: NDArray[np.float64], sweeps: int = 4) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Cyclic Jacobi diagonalisation of symmetric 3×3 matrices (n, 3, 3).
+
+    Returns the rotated matrices and the accumulated rotations V with
+    ``Vᵀ a V`` (nearly) diagonal, using the element updates of Numerical Recipes,
+    3rd ed., §11.1 (θ = (a_qq − a_pp)/(2 a_pq), t = sgn θ/(|θ| + √(θ² + 1)),
+    c = 1/√(t² + 1), s = t c, τ = s/(1 + c)).  Sweeps stop early once every
+    off-diagonal element is below 1e-15 of the trace.
+    """
+    a = a.copy()
+    n = a.shape[0]
+    v = np.broadcast_to(np.eye(3), (n, 3, 3)).copy()
+    scale = np.abs(np.einsum("nii->n", a)) + 1e-300
+    for _ in range(sweeps):
+        off = np.abs(a[:, 0, 1]) + np.abs(a[:, 0, 2]) + np.abs(a[:, 1, 2])
+        if np.all(off <= 1e-15 * scale):
+            break
+        for p, q in ((0, 1), (0, 2), (1, 2)):
+            r = 3 - p - q  # the third index
+            apq = a[:, p, q].copy()
+            nz = apq != 0.0
+            with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+                theta = (a[:, q, q] - a[:, p, p]) / (2.0 * np.where(nz, apq, 1.0))
+                t = np.where(theta >= 0, 1.0, -1.0) / (np.abs(theta) + np.sqrt(theta * theta + 1.0))
+            t = np.where(nz & np.isfinite(t), t, 0.0)
+            c = 1.0 / np.sqrt(t * t + 1.0)
+            s = t * c
+            a[:, p, p] -= t * apq
+            a[:, q, q] += t * apq
+            a[:, p, q] = a[:, q, p] = 0.0
+            arp, arq = a[:, r, p].copy(), a[:, r, q].copy()
+            a[:, r, p] = a[:, p, r] = c * arp - s * arq
+            a[:, r, q] = a[:, q, r] = s * arp + c * arq
+            vp, vq = v[:, :, p].copy(), v[:, :, q].copy()
+            v[:, :, p] = c[:, None] * vp - s[:, None] * vq
+            v[:, :, q] = s[:, None] * vp + c[:, None] * vq
+    return a, v
+
+
 def _reduce(layout: MoleculeLayout, per_channel: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Sum per-channel rows over each molecule's atoms."""
+    if layout.contiguous:
+        return np.add.reduceat(per_channel, layout.starts, axis=0)
     return np.add.reduceat(per_channel[layout.order], layout.starts, axis=0)
 
 
@@ -167,10 +213,17 @@ def _whole(layout: MoleculeLayout, positions: NDArray[np.float64], box) -> NDArr
 
 def _inertia(layout: MoleculeLayout, rel: NDArray[np.float64]) -> NDArray[np.float64]:
     """Inertia tensors (n_molecules, 3, 3), u Å², from centre-of-mass-relative positions."""
-    m = layout.masses[:, None, None]
-    outer = rel[:, :, None] * rel[:, None, :]
-    eye = np.einsum("ni,ni->n", rel, rel)[:, None, None] * np.eye(3)
-    return _reduce(layout, m * (eye - outer))
+    x, y, z = rel[:, 0], rel[:, 1], rel[:, 2]
+    m = layout.masses
+    six = _reduce(layout, np.stack(
+        [m * (y * y + z * z), m * (x * x + z * z), m * (x * x + y * y), -m * x * y, -m * x * z,
+         -m * y * z], axis=1))
+    out = np.empty((six.shape[0], 3, 3))
+    out[:, 0, 0], out[:, 1, 1], out[:, 2, 2] = six[:, 0], six[:, 1], six[:, 2]
+    out[:, 0, 1] = out[:, 1, 0] = six[:, 3]
+    out[:, 0, 2] = out[:, 2, 0] = six[:, 4]
+    out[:, 1, 2] = out[:, 2, 1] = six[:, 5]
+    return out
 
 
 def build_layout(
@@ -230,9 +283,10 @@ def build_layout(
     inside = np.stack([np.add.reduceat(g[order].astype(np.int64), starts) for g in members])
     group_molecules = inside == atom_count[None, :]
     group_whole = np.all((inside == 0) | group_molecules, axis=1)
+    contiguous = bool(np.array_equal(order, np.arange(n)))
     provisional = MoleculeLayout(
         mol, order, starts, masses, molecule_mass, atom_count, first,
-        np.zeros(n_mol, dtype=np.int64), group_molecules, group_whole,
+        np.zeros(n_mol, dtype=np.int64), group_molecules, group_whole, contiguous,
     )
     rel = _whole(provisional, pos, box)
     com = _reduce(provisional, masses[:, None] * rel) / molecule_mass[:, None]
@@ -241,7 +295,7 @@ def build_layout(
     rot = np.where(atom_count == 1, 0, np.where(moments[:, 0] < linear_ratio * moments[:, 2], 2, 3))
     return MoleculeLayout(
         mol, order, starts, masses, molecule_mass, atom_count, first,
-        rot.astype(np.int64), group_molecules, group_whole,
+        rot.astype(np.int64), group_molecules, group_whole, contiguous,
     )
 
 
@@ -309,11 +363,10 @@ class MolecularDecomposer:
         moments = np.zeros_like(V)
         nonlinear = lay.rotational_dof == 3
         if nonlinear.any():
-            vals, vecs = np.linalg.eigh(inertia[nonlinear])
-            vals, vecs = self._follow_axes(nonlinear, vals, vecs)
-            omega = np.linalg.solve(inertia[nonlinear], L[nonlinear][:, :, None])[:, :, 0]
-            body = np.einsum("nij,ni->nj", vecs, omega)
-            rot[nonlinear] = np.sqrt(np.clip(vals, 0, None)) * body
+            vals, vecs = self._principal_axes(nonlinear, inertia[nonlinear])
+            # ω = I⁻¹L, so on principal axis k: ω_k = e_k·L / I_k and √I_k ω_k = e_k·L / √I_k
+            projected = np.einsum("nij,ni->nj", vecs, L[nonlinear])
+            rot[nonlinear] = projected / np.sqrt(vals)
             moments[nonlinear] = vals
         linear = lay.rotational_dof == 2
         if linear.any():
@@ -327,6 +380,40 @@ class MolecularDecomposer:
         self.moment_sum += moments
         self.frames += 1
         return np.r_[V, rot]
+
+    def _principal_axes(self, select, inertia):
+        """Principal moments and axes, followed from the previous frame.
+
+        First frame: :func:`numpy.linalg.eigh`.  Later frames: the tensor is
+        expressed in the previous frame's axes (nearly diagonal) and diagonalised
+        by cyclic Jacobi rotations (Press et al., Numerical Recipes, 3rd ed. 2007,
+        §11.1), which keeps each axis label and sign continuous in time and costs
+        a few batched 3×3 products.  Molecules whose off-diagonal elements do not
+        fall below 1e-12 of the trace fall back to ``eigh`` + :meth:`_follow_axes`.
+        """
+        if self._axes is None:
+            vals, vecs = np.linalg.eigh(inertia)
+            return self._follow_axes(select, vals, vecs)
+        prev = self._axes[select]
+        a = np.swapaxes(prev, 1, 2) @ inertia @ prev
+        a, rotation = _jacobi(a)
+        vecs = prev @ rotation
+        vals = np.einsum("nii->ni", a).copy()
+        off = np.abs(a[:, 0, 1]) + np.abs(a[:, 0, 2]) + np.abs(a[:, 1, 2])
+        bad = ~(off <= 1e-12 * np.abs(vals).sum(axis=1))
+        if bad.any():
+            v2, e2 = np.linalg.eigh(inertia[bad])
+            overlap = np.einsum("nik,nil->nkl", prev[bad], e2)
+            scores = np.abs(overlap[:, np.arange(3)[None, :], _PERMUTATIONS]).sum(axis=-1)
+            best = _PERMUTATIONS[np.argmax(scores, axis=1)]
+            e2 = np.take_along_axis(e2, best[:, None, :], axis=2)
+            v2 = np.take_along_axis(v2, best, axis=1)
+            sign = np.sign(np.einsum("nik,nik->nk", prev[bad], e2))
+            sign[sign == 0] = 1.0
+            vecs[bad] = e2 * sign[:, None, :]
+            vals[bad] = v2
+        self._axes[select] = vecs
+        return vals, vecs
 
     def _follow_axes(self, select, vals, vecs):
         """Permute/sign-flip eigenvectors to best match the previous frame's axes."""
@@ -355,7 +442,7 @@ class MolecularDecomposer:
 
     # summaries --------------------------------------------------------------
     def mean_moments(self) -> NDArray[np.float64]:
-        """Time-mean principal moments per molecule (n_molecules, 3), u Å², ascending for nonlinear."""
+        """Time-mean principal moments per molecule (n_molecules, 3), u Å², in the followed-axis order."""
         if self.frames == 0:
             raise TrajectoryError("no frame was given to the molecular decomposition")
         return self.moment_sum / self.frames
@@ -530,7 +617,7 @@ class MolecularPass:
                 continue
             kind_count[g] = len(np.unique(kinds[sel], axis=0))
             mass[g] = lay.molecule_mass[sel].mean()
-            group_moments[g] = moments[sel].mean(axis=0)
+            group_moments[g] = np.sort(moments[sel], axis=1).mean(axis=0)
             rot_dof[g] = lay.rotational_dof[sel].mean()
             vib_dof[g] = (3 * lay.atom_count[sel].sum() - 3 * sel.sum()
                           - lay.rotational_dof[sel].sum() - constraints[g]) / sel.sum()
