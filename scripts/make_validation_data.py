@@ -20,9 +20,9 @@ system                        model / engine
 ``copper_100K``, ``_300K``    fcc Cu, 4×4×4 cubic cells (256 atoms), effective-medium
                               theory (EMT) as shipped with ASE [1]_; well below and near
                               the Debye temperature (343 K, Kittel [2]_)
-``water_flexible_298K``       216 flexible TIP3P molecules [3]_ (OpenMM's ``tip3p.xml``
-                              with its harmonic O–H bond and H–O–H angle terms; bond
-                              constraints off), PME electrostatics, OpenMM [4]_
+``water_flexible_298K``       216 flexible TIP3P molecules [3]_ with the CHARMM force
+                              field's harmonic O–H bond and H–O–H angle terms (OpenMM's
+                              ``charmm36/water.xml``; constraints off), PME, OpenMM [4]_
 ``argon_liquid_86K``          500 Lennard-Jones atoms, ε/k = 119.8 K, σ = 3.405 Å
                               (Rowley, Nicholson & Parsonage [5]_), at the state point
                               T* = 0.722, ρ* = 0.8442 studied by Verlet [6]_ (86.5 K,
@@ -44,8 +44,12 @@ References
 ----------
 .. [1] K. W. Jacobsen, P. Stoltze, J. K. Nørskov, Surf. Sci. 366, 394 (1996).
 .. [2] C. Kittel, Introduction to Solid State Physics (Wiley), table "Debye temperature".
-.. [3] W. L. Jorgensen et al., J. Chem. Phys. 79, 926 (1983); flexible force constants as
-       in OpenMM's ``tip3p.xml`` (AMBER parm values).
+.. [3] W. L. Jorgensen et al., J. Chem. Phys. 79, 926 (1983); bond and angle terms of the
+       CHARMM22 force field, A. D. MacKerell Jr. et al., J. Phys. Chem. B 102, 3586 (1998),
+       as shipped in OpenMM's ``charmm36/water.xml`` (k_OH = 376560 kJ/(mol nm²),
+       k_HOH = 460.24 kJ/(mol rad²)).  OpenMM's plain ``tip3p.xml`` is *not* used: its
+       angle constant (836.8 kJ/(mol rad²), AMBER's, meant for constrained water) puts the
+       H–O–H bend near 2350 cm⁻¹ instead of ≈ 1650 cm⁻¹.
 .. [4] P. Eastman et al., J. Phys. Chem. B 128, 109 (2024) (OpenMM 8).
 .. [5] L. A. Rowley, D. Nicholson, N. G. Parsonage, J. Comput. Phys. 17, 401 (1975).
 .. [6] L. Verlet, Phys. Rev. 159, 98 (1967).
@@ -118,13 +122,14 @@ class CrystalSpec:
 
 @dataclasses.dataclass(frozen=True)
 class WaterSpec:
-    """Flexible TIP3P water in OpenMM."""
+    """Flexible TIP3P water (CHARMM bond and angle terms) in OpenMM."""
 
     name: str
     temperature_K: float
     molecules_per_side: int
     cutoff_nm: float
     seed: int
+    forcefield: str = "charmm36/water.xml"  # flexible CHARMM terms; see reference [3]
     density_g_per_cm3: float = 0.997  # liquid water at 25 °C, 1 atm (common practice)
     timestep_fs: float = 0.5
     steps_per_frame: int = 4
@@ -549,8 +554,8 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
     for i in range(n_side):
         for j in range(n_side):
             for k in range(n_side):
-                residue = topology.addResidue("HOH", chain)
-                o = topology.addAtom("O", app.element.oxygen, residue)
+                residue = topology.addResidue("TIP3", chain)
+                o = topology.addAtom("OH2", app.element.oxygen, residue)
                 h1 = topology.addAtom("H1", app.element.hydrogen, residue)
                 h2 = topology.addAtom("H2", app.element.hydrogen, residue)
                 topology.addBond(o, h1)
@@ -560,7 +565,7 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
     topology.setPeriodicBoxVectors(np.eye(3) * box_nm * unit.nanometer)
     positions = np.array(positions)
 
-    forcefield = app.ForceField("tip3p.xml")
+    forcefield = app.ForceField(spec.forcefield)
     system = forcefield.createSystem(
         topology,
         nonbondedMethod=app.PME,
@@ -594,7 +599,7 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
 
     residue_of_atom = [atom.residue.index for atom in topology.atoms()]
     recorder = TrajectoryRecorder(
-        directory, [a.name for a in topology.atoms()], elements, ["HOH"] * n_mol, residue_of_atom
+        directory, [a.name for a in topology.atoms()], elements, ["TIP3"] * n_mol, residue_of_atom
     )
     recorder.write_topology(state.getPositions(asNumpy=True).value_in_unit(unit.angstrom), np.full(3, box_nm * 10))
     with recorder:
@@ -602,9 +607,10 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
     return {
         "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads},
         "model": {
-            "description": "flexible TIP3P water: OpenMM tip3p.xml with rigidWater=False, constraints=None",
-            "reference": "W. L. Jorgensen et al., J. Chem. Phys. 79, 926 (1983); bond k = 462750.4 kJ/(mol nm^2), "
-            "angle k = 836.8 kJ/(mol rad^2) as in OpenMM's tip3p.xml",
+            "description": "flexible TIP3P water: OpenMM charmm36/water.xml with rigidWater=False, constraints=None",
+            "reference": "W. L. Jorgensen et al., J. Chem. Phys. 79, 926 (1983); CHARMM bond and angle terms "
+            "(A. D. MacKerell Jr. et al., J. Phys. Chem. B 102, 3586 (1998)): bond k = 376560 kJ/(mol nm^2), "
+            "angle k = 460.24 kJ/(mol rad^2), as in OpenMM's charmm36/water.xml",
             "electrostatics": f"PME, cutoff {spec.cutoff_nm} nm, long-range dispersion correction on",
             "masses": "set to the values MDAnalysis assigns from the elements (O 15.999, H 1.008 u)",
             "density_g_per_cm3": spec.density_g_per_cm3,
@@ -798,7 +804,7 @@ def make_system(spec: Spec, directory: Path, threads: int = 1) -> dict[str, Any]
     )
     settings = {
         "system": spec.name,
-        "made_by": "scripts/make_validation_data.py",
+        "engine_code": "scripts/make_validation_data.py",
         "settings": spec_settings(spec),
         "settings_digest": settings_digest(spec),
         **result,
