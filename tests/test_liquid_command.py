@@ -400,6 +400,9 @@ def test_lennard_jones_argon_liquid_entropy_against_jzg_equation_of_state(tmp_pa
     s_eos = (s_ideal + s_res) * R  # J/(mol K), classical
     s_pub = results["published"]["classical"]
     s_cv = results["constant-volume"]["classical"]
+    print(f"LJ argon T*={t_star:.4f} rho*={rho_star:.4f}: S/R EOS {s_eos / R:.4f}, 2PT published "
+          f"{s_pub / R:.4f} ({s_pub / s_eos - 1:+.2%}), constant-volume {s_cv / R:.4f} "
+          f"({s_cv / s_eos - 1:+.2%}); U_res MD {md['potential'].mean() / (n * md['eps']):.4f} EOS {u_res:.4f}")
     assert s_pub == pytest.approx(s_eos, rel=0.05)
     assert s_cv == pytest.approx(s_eos, rel=0.05)
     assert s_cv < s_eos < s_pub
