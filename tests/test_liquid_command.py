@@ -446,3 +446,15 @@ def test_help_gives_every_option_with_its_unit(capsys):
                      "constant-volume", "--gas-volume", "--rotational-fluidicity", "same-as-translation",
                      "--diffusion-from", "msd", "--split-output", "cm per cm-1"):
         assert fragment in text, fragment
+
+
+def test_incomplete_molecular_file_is_refused(tmp_path, run_qcorr):
+    import xarray as xr
+
+    path = _molecular_water_gas(tmp_path)
+    with xr.open_dataset(path, engine="h5netcdf") as ds:
+        broken = ds.load().drop_vars("principal_moments")
+    p2 = spectra.write_spectrum_file(broken, tmp_path / "broken.nc")
+    code, _, err = run_qcorr("liquid", p2, "--output", tmp_path / "x.csv")
+    assert code != 0 and "lacks 'principal_moments'" in err and "broken.nc" in err
+    assert not (tmp_path / "x.csv").exists()

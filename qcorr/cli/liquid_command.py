@@ -17,7 +17,7 @@ import numpy as np
 
 from qcorr import constants as C
 from qcorr import table, twophase
-from qcorr.errors import ConfigError, PhysicsError, QcorrWarning
+from qcorr.errors import ConfigError, PhysicsError, QcorrWarning, SpectrumFileError
 from qcorr.harmonic import segment_effective_count, segment_standard_error
 from qcorr.spectrum_file import group_names, read_spectrum
 
@@ -141,6 +141,20 @@ class GroupInput:
     msd_diffusion_m2_per_s: float
     source: str
     rotational_dof: int | None = None
+
+
+def _check_molecular_variables(ds, path) -> None:
+    """A file with molecular spectra must hold all of them (names the missing one)."""
+    from qcorr.molecular import MOLECULAR_VARIABLES
+
+    if "vdos_translation" not in ds.variables:
+        return
+    for name in MOLECULAR_VARIABLES:
+        if name not in ds.variables:
+            raise SpectrumFileError(
+                f"spectrum file '{path}' has molecular spectra but lacks '{name}'; remake it with "
+                "'qcorr spectrum --molecular'"
+            )
 
 
 def _group_input(ds, g: int, name: str, path) -> GroupInput | str:
@@ -311,6 +325,7 @@ def run(args: argparse.Namespace) -> int:
         raise ConfigError("--system: give a non-empty identifier")
 
     ds = read_spectrum(spectrum_path)
+    _check_molecular_variables(ds, spectrum_path)
     names = group_names(ds)
     for option, given in (("--symmetry-number", sigma_per), ("--md-energy", md_energy)):
         for gname in given:
