@@ -349,6 +349,8 @@ BAD_SHEETS = {
                         "matches no atom"),
     "unknown column": ([copper_row(colour="blue")], "header row", "'colour'",
                        "unknown column"),
+    "liquid in frame blocks": ([copper_row(liquid="true", blocks="2")], "row 1", "'blocks'",
+                               "cannot be split into frame blocks"),
 }
 
 
