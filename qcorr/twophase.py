@@ -76,6 +76,7 @@ __all__ = [
     "ComponentResult",
     "carnahan_starling_compressibility",
     "fluidicity",
+    "finite_size_diffusion_correction",
     "fluidicity_equation",
     "gas_dos",
     "gas_packing_fraction",
@@ -304,6 +305,31 @@ def gas_dos(
     if gas_dof <= 0 or zero_frequency_dos_cm <= 0:
         return np.zeros_like(x)
     return zero_frequency_dos_cm / (1.0 + (math.pi * zero_frequency_dos_cm * x / (2.0 * gas_dof)) ** 2)
+
+
+#: Yeh & Hummer, J. Phys. Chem. B 108, 15873 (2004): the constant xi of the
+#: finite-size correction of D for a cubic periodic box (Ewald sum of the
+#: Oseen tensor over a simple cubic lattice)
+YEH_HUMMER_XI = 2.837297
+
+
+def finite_size_diffusion_correction(
+    temperature_K: float, viscosity_Pa_s: float, box_edge_A: float
+) -> float:
+    """Yeh–Hummer correction ``D_inf − D_PBC = ξ k T / (6 π η L)`` in m²/s.
+
+    Parameters
+    ----------
+    temperature_K : float
+    viscosity_Pa_s : float
+        Shear viscosity η of the model, Pa s.
+    box_edge_A : float
+        Edge L of the cubic box, Å.
+    """
+    if not (viscosity_Pa_s > 0 and box_edge_A > 0 and temperature_K > 0):
+        raise ConfigError("finite-size correction needs positive temperature, viscosity and box edge")
+    return (YEH_HUMMER_XI * C.boltzmann_J_per_K * temperature_K
+            / (6.0 * math.pi * viscosity_Pa_s * box_edge_A * C.angstrom_m))
 
 
 # --------------------------------------------------------------------------

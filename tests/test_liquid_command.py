@@ -458,3 +458,21 @@ def test_incomplete_molecular_file_is_refused(tmp_path, run_qcorr):
     code, _, err = run_qcorr("liquid", p2, "--output", tmp_path / "x.csv")
     assert code != 0 and "lacks 'principal_moments'" in err and "broken.nc" in err
     assert not (tmp_path / "x.csv").exists()
+
+
+def test_viscosity_adds_the_yeh_hummer_correction(tmp_path, run_qcorr):
+    # Yeh & Hummer, J. Phys. Chem. B 108, 15873 (2004), Eq. for a cubic box:
+    # D_inf = D_PBC + xi kT/(6 pi eta L), xi = 2.837297.  Water-like viscosity.
+    path = _molecular_water_gas(tmp_path)
+    out = tmp_path / "v.csv"
+    eta = 8.9e-4
+    code, _, err = run_qcorr("liquid", path, "--output", out, "--quiet", "--symmetry-number", "2",
+                             "--viscosity", eta, "--diffusion-from", "msd")
+    assert code == 0, err
+    side = json.loads(out.with_suffix(".json").read_text())["groups"]["total"]
+    edge_m = side["volume_A3"] ** (1 / 3) * 1e-10
+    expected = 2.837297 * sc.k * T298 / (6 * math.pi * eta * edge_m)
+    assert side["finite_size_correction_m2_per_s"] == pytest.approx(expected, rel=1e-12)
+    assert side["self_diffusion_used_m2_per_s"] == pytest.approx(1.0e-3 + expected, rel=1e-12)
+    code, _, err = run_qcorr("liquid", path, "--output", out, "--viscosity", "-1")
+    assert code != 0 and "--viscosity" in err

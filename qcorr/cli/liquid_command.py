@@ -79,6 +79,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="translational zero-frequency value from the spectrum S(0) (default) or "
                              "from the mean-square-displacement diffusion coefficient; both are "
                              "always reported")
+    parser.add_argument("--viscosity", metavar="PA_S", type=float, default=None,
+                        help="shear viscosity in Pa s: add the Yeh-Hummer finite-size correction "
+                             "2.837297 kT/(6 pi eta L) (cubic box, L = volume^(1/3)) to the "
+                             "self-diffusion coefficient before 2PT (default: none, the periodic "
+                             "system's own diffusion)")
     parser.add_argument("--volume", metavar="A3", type=float, default=None,
                         help="system volume in cubic angstrom (default: the mean box volume of the "
                              "spectrum file)")
@@ -143,13 +148,20 @@ class GroupInput:
     rotational_dof: int | None = None
 
 
+#: variables of 'qcorr spectrum --molecular' that 2PT reads
+_NEEDED_MOLECULAR_VARIABLES = (
+    "vdos_translation", "vdos_rotation", "vdos_vibration", "vdos_translation_segments",
+    "vdos_rotation_segments", "vdos_vibration_segments", "whole_molecule_count",
+    "molecule_kind_count", "molecule_mass", "principal_moments", "rotational_dof_per_molecule",
+    "vibrational_dof_per_molecule", "self_diffusion_msd",
+)
+
+
 def _check_molecular_variables(ds, path) -> None:
     """A file with molecular spectra must hold all of them (names the missing one)."""
-    from qcorr.molecular import MOLECULAR_VARIABLES
-
     if "vdos_translation" not in ds.variables:
         return
-    for name in MOLECULAR_VARIABLES:
+    for name in _NEEDED_MOLECULAR_VARIABLES:
         if name not in ds.variables:
             raise SpectrumFileError(
                 f"spectrum file '{path}' has molecular spectra but lacks '{name}'; remake it with "
@@ -318,6 +330,8 @@ def run(args: argparse.Namespace) -> int:
         table.check_output_path(args.split_output, [spectrum_path], "--split-output")
     default_sigma, sigma_per = parse_symmetry_numbers(args.symmetry_number)
     md_energy = parse_md_energies(args.md_energy)
+    if args.viscosity is not None and not (math.isfinite(args.viscosity) and args.viscosity > 0):
+        raise ConfigError(f"--viscosity {args.viscosity}: give a positive shear viscosity in Pa s")
     if args.volume is not None and not (math.isfinite(args.volume) and args.volume > 0):
         raise ConfigError(f"--volume {args.volume}: give a positive volume in cubic angstrom")
     system = args.system if args.system is not None else spectrum_path.stem
@@ -359,29 +373,52 @@ def run(args: argparse.Namespace) -> int:
             notes.append(f"group '{name}': no --symmetry-number given, 1 assumed (water: 2, NH3: 3, CH4: 12)")
             sigma = 1
         sigma = sigma or 1
+        # the spectrum is normalised to the degrees of freedom, i.e. with the group's kinetic
+        # temperature: convert between S(0) and D with that temperature (Green-Kubo)
+        t_kin = float(ds["kinetic_temperature"].values[g])
+        t_kin = t_kin if math.isfinite(t_kin) and t_kin > 0 else temperature
+
+        def s0_of(d_m2_per_s: float) -> float:
+            return (d_m2_per_s * 12.0 * gin.mass_u * C.atomic_mass_kg * gin.molecule_count
+                    / (C.boltzmann_J_per_K * t_kin) * C.speed_of_light_cm_per_s)
+
         s0_spectrum = float(gin.parts["translation"][0])
         d_spectrum = twophase.self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count,
-                                                                 temperature, gin.mass_u)
-        s0_msd = (gin.msd_diffusion_m2_per_s * 12.0 * gin.mass_u * C.atomic_mass_kg * gin.molecule_count
-                  / (C.boltzmann_J_per_K * temperature) * C.speed_of_light_cm_per_s)
-        if args.diffusion_from == "msd" and not math.isfinite(s0_msd):
+                                                                 t_kin, gin.mass_u)
+        if args.diffusion_from == "msd" and not math.isfinite(gin.msd_diffusion_m2_per_s):
             raise PhysicsError(f"group '{name}': --diffusion-from msd needs the MSD diffusion coefficient, "
                                "which the spectrum file lacks; remake it with 'qcorr spectrum --molecular'")
-        s0 = s0_msd if args.diffusion_from == "msd" else None
+        d_correction = 0.0
+        if args.viscosity is not None:
+            d_correction = twophase.finite_size_diffusion_correction(
+                temperature, args.viscosity, volume ** (1.0 / 3.0))
+        n_seg = ds.sizes["segment"]
+        if args.diffusion_from == "msd":
+            s0 = s0_of(gin.msd_diffusion_m2_per_s + d_correction)
+            s0_segments = [s0] * n_seg
+            d_used = gin.msd_diffusion_m2_per_s + d_correction
+        else:
+            s0 = s0_spectrum + s0_of(d_correction)
+            s0_segments = [float(v[0]) + s0_of(d_correction)
+                           for v in gin.part_segments["translation"]]
+            d_used = d_spectrum + d_correction
         options = dict(molecule_count=gin.molecule_count, temperature_K=temperature, mass_u=gin.mass_u,
                        volume_A3=volume, principal_moments_u_A2=gin.principal_moments,
                        symmetry_number=sigma, hard_sphere_form=args.hard_sphere_entropy,
                        gas_volume=args.gas_volume, rotational_fluidicity=args.rotational_fluidicity,
-                       translation_zero_frequency_cm=s0, rotational_dof_per_molecule=gin.rotational_dof)
-        result = twophase.two_phase_group(wavenumber, gin.parts, **options)
+                       rotational_dof_per_molecule=gin.rotational_dof)
+        result = twophase.two_phase_group(wavenumber, gin.parts, translation_zero_frequency_cm=s0,
+                                          **options)
         seg_results = [
-            twophase.two_phase_group(wavenumber, {k: v[s] for k, v in gin.part_segments.items()}, **options)
-            for s in range(ds.sizes["segment"])
-        ] if ds.sizes["segment"] >= 2 else []
+            twophase.two_phase_group(wavenumber, {k: v[i] for k, v in gin.part_segments.items()},
+                                     translation_zero_frequency_cm=s0_segments[i], **options)
+            for i in range(n_seg)
+        ] if n_seg >= 2 else []
         notes += _warn_checks(gin, result, seg_results, k_eff, wavenumber, temperature)
         note = (f"2PT per mole of molecules; hard-sphere entropy {args.hard_sphere_entropy}, gas volume "
                 f"{args.gas_volume}, rotational fluidicity {args.rotational_fluidicity}, zero-frequency "
-                f"value from {args.diffusion_from}")
+                f"value from {args.diffusion_from}"
+                + (f" + Yeh-Hummer correction (viscosity {args.viscosity:g} Pa s)" if args.viscosity else ""))
         rows += _rows(system, gin, result, seg_results, k_eff, temperature, md_energy.get(name), note)
         info[name] = {
             "source": gin.source,
@@ -391,6 +428,9 @@ def run(args: argparse.Namespace) -> int:
             "symmetry_number": sigma,
             "self_diffusion_from_spectrum_m2_per_s": _json_number(d_spectrum),
             "self_diffusion_from_msd_m2_per_s": _json_number(gin.msd_diffusion_m2_per_s),
+            "finite_size_correction_m2_per_s": _json_number(d_correction),
+            "self_diffusion_used_m2_per_s": _json_number(d_used),
+            "temperature_for_diffusion_K": t_kin,
             "components": {
                 comp: {
                     "degrees_of_freedom_per_molecule": _json_number(c.dof_per_molecule),
@@ -428,6 +468,7 @@ def run(args: argparse.Namespace) -> int:
             "hard_sphere_entropy": args.hard_sphere_entropy,
             "gas_volume": args.gas_volume,
             "diffusion_from": args.diffusion_from,
+            "viscosity_Pa_s": args.viscosity,
             "volume_A3": volume,
             "md_energy_kJ_per_mol": md_energy,
         },
