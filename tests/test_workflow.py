@@ -27,6 +27,7 @@ import shlex
 import shutil
 import subprocess
 import sys
+import sysconfig
 import time
 from pathlib import Path
 
@@ -65,9 +66,20 @@ def fresh_copy(destination: Path) -> Path:
     return destination
 
 
+def console_script_path() -> str:
+    """PATH with the directories pip puts console scripts in (``qcorr``) in front, so the
+    rules' ``shell:`` finds the qcorr of the Python running the tests."""
+    folders = [sysconfig.get_path("scripts"), str(Path(sys.executable).parent)]
+    user = sysconfig.get_path("scripts", f"{os.name}_user")
+    if user:
+        folders.append(user)
+    return os.pathsep.join([*dict.fromkeys(folders), os.environ.get("PATH", "")])
+
+
 def snakemake(args: list[str], cwd: Path, timeout: float = RUN_TIMEOUT_S):
     """Run ``python -m snakemake ARGS`` in *cwd*; return the CompletedProcess."""
-    return subprocess.run([sys.executable, "-m", "snakemake", *args], cwd=cwd,
+    env = {**os.environ, "PATH": console_script_path()}
+    return subprocess.run([sys.executable, "-m", "snakemake", *args], cwd=cwd, env=env,
                           capture_output=True, text=True, timeout=timeout, check=False)
 
 
