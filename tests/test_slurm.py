@@ -21,6 +21,8 @@ from __future__ import annotations
 import os
 import shutil
 import subprocess
+import sys
+import sysconfig
 import uuid
 from pathlib import Path
 
@@ -125,6 +127,16 @@ def our_jobs(name_prefix: str) -> list[tuple[str, str]]:
     return jobs
 
 
+def console_script_path() -> str:
+    """PATH with the console-script folders of the Python running the tests in front.
+
+    The rules call ``qcorr``; the jobs (local, or SLURM jobs, which inherit the
+    submitting environment) must find the one installed for this Python.
+    """
+    folders = [sysconfig.get_path("scripts"), str(Path(sys.executable).parent)]
+    return os.pathsep.join([*dict.fromkeys(folders), os.environ.get("PATH", "")])
+
+
 def run_limited(command: list[str], cwd: Path, log: Path) -> subprocess.CompletedProcess:
     """Run a command under ``timeout -k`` (SIGTERM at the limit, SIGKILL after the grace period)."""
     wrapped = ["timeout", "-k", str(KILL_AFTER_S), str(RUN_LIMIT_S), *command]
@@ -133,13 +145,14 @@ def run_limited(command: list[str], cwd: Path, log: Path) -> subprocess.Complete
             wrapped,
             check=False,
             cwd=cwd,
+            env={**os.environ, "PATH": console_script_path()},
             stdout=out,
             stderr=subprocess.STDOUT,
             text=True,
             timeout=RUN_LIMIT_S + KILL_AFTER_S + 30,
         )
     if result.returncode == 124:
-        pytest.fail(f"{command[0]} hit the {RUN_LIMIT_S} s limit; log: {log}")
+        pytest.fail(f"{' '.join(command[:3])} hit the {RUN_LIMIT_S} s limit; log: {log}")
     return result
 
 
@@ -174,7 +187,7 @@ def test_batch_job_sees_this_python(slurm_cluster, tmp_path):
         [
             "timeout", "-k", "10", "120",
             "sbatch", "--wait", "--quiet", f"--output={out}", "--time=2", "--mem=200",
-            f"--wrap={shutil.which('python') or 'python3'} -c 'import qcorr; print(qcorr.__version__)'",
+            f"--wrap={sys.executable} -c 'import qcorr; print(qcorr.__version__)'",
         ],
         check=False,
         capture_output=True,
@@ -193,7 +206,15 @@ def test_demo_workflow_on_slurm_equals_local_run(slurm_cluster, tmp_path):
     if not SNAKEFILE.exists():
         pytest.fail(f"{SNAKEFILE} is missing")
     cores = str(min(2, os.cpu_count() or 1))
-    common = ["snakemake", MERGED_TABLE, "--snakefile", str(SNAKEFILE), "--show-failed-logs"]
+    common = [
+        sys.executable,
+        "-m",
+        "snakemake",
+        MERGED_TABLE,
+        "--snakefile",
+        str(SNAKEFILE),
+        "--show-failed-logs",
+    ]
 
     local_dir = prepare_workdir(tmp_path / "local")
     local_log = tmp_path / "local.log"
