@@ -26,6 +26,11 @@ def atomic_path(target: str | os.PathLike[str]) -> Iterator[Path]:
     tmp = Path(tmp_name)
     try:
         yield tmp
+        # mkstemp creates the file readable by its owner only; give the output the
+        # permissions an ordinary new file gets (0666 minus the process umask)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, target)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

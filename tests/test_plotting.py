@@ -16,6 +16,8 @@ Oracles
 
 from __future__ import annotations
 
+import os
+import stat
 import subprocess
 import sys
 import xml.etree.ElementTree as ElementTree
@@ -272,3 +274,14 @@ def test_right_edge_equals_the_property_table(spectrum_file, tmp_path):
     for name in plotting.CUMULATIVE_PROPERTIES:
         expected = float(rows.loc[rows["property"] == name, "correction"].iloc[0])
         assert float(running[name].values[-1]) == pytest.approx(expected, rel=1e-9), name
+
+
+def test_figures_get_ordinary_file_permissions(tmp_path):
+    """Outputs are shared on clusters: a figure is readable like any new file (0666 minus
+    the umask), not owner-only as the temporary file of the atomic write starts out."""
+    umask = os.umask(0o022)
+    try:
+        path = plotting.plot_spectrum(debye_dataset(300.0, step=1.0), tmp_path / "s.svg")
+    finally:
+        os.umask(umask)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o644
