@@ -23,7 +23,7 @@ Usage::
 What reproducible means here
 ----------------------------
 Every run is deterministic: all random numbers come from fixed seeds, OpenMM runs on its
-CPU platform with one thread, ASE's EMT is plain NumPy.  With the same versions of the
+CPU platform with one thread and ``DeterministicForces``, ASE's EMT is plain NumPy.  With the same versions of the
 engines and NumPy on the same kind of processor, regeneration is therefore *bitwise*
 identical, and ``--check`` demands that (``identical``).  Any other build changes the last
 bits of some force, and molecular dynamics is chaotic (Lyapunov instability): such

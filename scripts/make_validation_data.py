@@ -137,6 +137,7 @@ class WaterSpec:
     production_ps: float = 10.0
     equilibration_collision_per_ps: float = 5.0
     production_collision_per_ps: float = 0.5
+    deterministic_forces: bool = True  # OpenMM CPU platform property, see _openmm_platform
     segment_ps: float = 1.0
     kind: str = "water"
 
@@ -161,6 +162,7 @@ class ArgonSpec:
     production_ps: float = 30.0
     equilibration_collision_per_ps: float = 5.0
     production_collision_per_ps: float = 0.5
+    deterministic_forces: bool = True  # OpenMM CPU platform property, see _openmm_platform
     segment_ps: float = 6.0  # Hann-window resolution bias of <nu^2> ~ 1/(3 T_seg^2): 0.6 % here
     kind: str = "argon"
 
@@ -447,10 +449,16 @@ def run_crystal(spec: CrystalSpec, directory: Path) -> dict[str, Any]:
 
 
 def _openmm_platform(threads: int = 1):
+    """OpenMM's CPU platform, set up to give the same bits in every process.
+
+    ``DeterministicForces`` makes the force sums independent of thread scheduling and of
+    the FFT plan the PME code picks at run time (without it two processes with the same
+    seeds were found to differ after the first PME evaluation, OpenMM 8.6).
+    """
     import openmm as mm
 
     platform_ = mm.Platform.getPlatformByName("CPU")
-    return platform_, {"Threads": str(threads)}
+    return platform_, {"Threads": str(threads), "DeterministicForces": "true"}
 
 
 def _nose_hoover_simulation(topology, system, temperature_K, collision_per_ps, timestep, platform_, properties):
@@ -605,7 +613,8 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
     with recorder:
         observed, msd = _record_openmm_production(simulation, recorder, spec, masses, dof)
     return {
-        "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads},
+        "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads,
+                   "deterministic_forces": True},
         "model": {
             "description": "flexible TIP3P water: OpenMM charmm36/water.xml with rigidWater=False, constraints=None",
             "reference": "W. L. Jorgensen et al., J. Chem. Phys. 79, 926 (1983); CHARMM bond and angle terms "
@@ -713,7 +722,8 @@ def run_argon(spec: ArgonSpec, directory: Path, threads: int = 1) -> dict[str, A
         observed, msd = _record_openmm_production(simulation, recorder, spec, masses, dof)
     density = n * mass / avogadro_per_mol / (box_nm * 1e-7) ** 3
     return {
-        "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads},
+        "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads,
+                   "deterministic_forces": True},
         "model": {
             "description": "Lennard-Jones argon, truncated at the cutoff with the long-range dispersion correction",
             "epsilon_over_k_K": spec.epsilon_over_k_K,
