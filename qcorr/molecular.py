@@ -27,11 +27,24 @@ molecule and part):
   axis (tiny moment) is left to vibration;
 * monatomic molecules: no rotation.
 
-Vibration is the *difference* DoS, ``S_vib = S_atoms − S_trn − S_rot``, not
-the spectrum of the residual velocities ``v_j^vib``: the two differ by the
-spectra of cross-correlations between the parts [1]_.  Rigid molecules (no
-vibrational degree of freedom left after constraints) get ``S_vib = 0``
-exactly; their difference DoS is only reported as a check.
+Vibration is given two ways, which differ by the spectra of cross-correlations
+between the parts [1]_:
+
+* the *difference* DoS, ``S_vib = S_atoms − S_trn − S_rot`` (``vdos_vibration``);
+* the *residual-velocity* DoS, the spectrum of ``v_j^vib = v_j − V_i − ω_i × r_j``
+  (``vdos_vibration_residual``).
+
+Both integrate to the same number: at every instant Σ m v² = M V² + ω·I·ω +
+Σ m |v^vib|² exactly, because Σ m v^vib = 0 and Σ m r × v^vib = L − Iω = 0.
+The difference DoS, however, is negative near zero frequency: a rotating
+molecule's atoms do not diffuse relative to its centre (the atomic S(0) equals
+the translational one) while the angular velocity does (S_rot(0) > 0), so
+``S_vib(0) = −S_rot(0)``; weighted by the entropy weight, which grows without
+bound at low frequency, this gives spurious negative vibrational entropy.
+The residual-velocity DoS is non-negative and is what ``qcorr liquid`` uses by
+default.  Rigid molecules (no vibrational degree of freedom left after
+constraints) get both set to 0 exactly; their difference integral is reported
+as a check.
 
 The self-diffusion coefficient of the molecules is also estimated from the
 mean-square displacement of the unwrapped centres of mass (Einstein relation,
@@ -320,24 +333,36 @@ class MolecularDecomposer:
         self.unwrapped_com: NDArray[np.float64] | None = None
 
     # channel description --------------------------------------------------
-    def channel_weights(self) -> NDArray[np.float64]:
-        """Weights of the 2·n_molecules channels: molecular masses (u), then ones."""
-        return np.r_[self.layout.molecule_mass, np.ones(self.layout.n_molecules)]
+    def channel_weights(self, include_vibration: bool = False) -> NDArray[np.float64]:
+        """Channel weights: molecular masses (u) for translation, ones for rotation, and
+        with *include_vibration* the atomic masses (u) of the residual velocities."""
+        w = np.r_[self.layout.molecule_mass, np.ones(self.layout.n_molecules)]
+        return np.r_[w, self.layout.masses] if include_vibration else w
 
-    def channel_groups(self) -> NDArray[np.bool_]:
-        """Membership (2·n_groups, 2·n_molecules): translation groups, then rotation groups."""
+    def channel_groups(self, include_vibration: bool = False) -> NDArray[np.bool_]:
+        """Membership: translation groups, then rotation groups (2·n_groups rows over
+        2·n_molecules channels); with *include_vibration* also residual-velocity groups
+        (3·n_groups rows; atoms of the group's whole molecules)."""
         g = self.layout.group_molecules
         z = np.zeros_like(g)
-        return np.r_[np.c_[g, z], np.c_[z, g]]
+        if not include_vibration:
+            return np.r_[np.c_[g, z], np.c_[z, g]]
+        atoms = g[:, self.layout.molecule_of_channel]
+        za = np.zeros_like(atoms)
+        return np.r_[np.c_[g, z, za], np.c_[z, g, za], np.c_[z, z, atoms]]
 
     # one frame --------------------------------------------------------------
     def frame(
-        self, positions_A: ArrayLike, velocities_A_per_ps: ArrayLike, box: ArrayLike | None = None
+        self, positions_A: ArrayLike, velocities_A_per_ps: ArrayLike, box: ArrayLike | None = None,
+        include_vibration: bool = False,
     ) -> NDArray[np.float64]:
-        """Channel values of one frame, shape (2·n_molecules, 3).
+        """Channel values of one frame, shape (2·n_molecules, 3) (+ n_atoms rows).
 
         Rows 0..n-1: centre-of-mass velocities (Å/ps); rows n..2n-1: √I-weighted
-        angular velocities (√u Å/ps), see the module docstring.
+        angular velocities (√u Å/ps), see the module docstring.  With
+        *include_vibration*, then the residual atomic velocities
+        ``v_j − V_i − ω_i × r_j`` (Å/ps; ω_⊥ for linear molecules), whose kinetic
+        energy is exactly the total minus translation minus rotation.
         """
         lay = self.layout
         x = np.asarray(positions_A, dtype=np.float64)
@@ -360,6 +385,7 @@ class MolecularDecomposer:
         L = _reduce(lay, m * np.cross(rel, dv))
         inertia = _inertia(lay, rel)
         rot = np.zeros_like(V)
+        omega = np.zeros_like(V)
         moments = np.zeros_like(V)
         nonlinear = lay.rotational_dof == 3
         if nonlinear.any():
@@ -367,6 +393,7 @@ class MolecularDecomposer:
             # ω = I⁻¹L, so on principal axis k: ω_k = e_k·L / I_k and √I_k ω_k = e_k·L / √I_k
             projected = np.einsum("nij,ni->nj", vecs, L[nonlinear])
             rot[nonlinear] = projected / np.sqrt(vals)
+            omega[nonlinear] = np.einsum("nij,nj->ni", vecs, projected / vals)
             moments[nonlinear] = vals
         linear = lay.rotational_dof == 2
         if linear.any():
@@ -376,10 +403,14 @@ class MolecularDecomposer:
             Ll = L[linear]
             Lperp = Ll - np.einsum("ni,ni->n", Ll, axis)[:, None] * axis
             rot[linear] = Lperp / np.sqrt(perp)[:, None]  # √I ω⊥ = L⊥/√I
+            omega[linear] = Lperp / perp[:, None]
             moments[linear] = vals
         self.moment_sum += moments
         self.frames += 1
-        return np.r_[V, rot]
+        if not include_vibration:
+            return np.r_[V, rot]
+        residual = dv - np.cross(omega[mol], rel)
+        return np.r_[V, rot, residual]
 
     def _principal_axes(self, select, inertia):
         """Principal moments and axes, followed from the previous frame.
@@ -521,7 +552,7 @@ class CentreOfMassDisplacement:
 MOLECULAR_VARIABLES = (
     "vdos_translation", "vdos_rotation", "vdos_vibration",
     "vdos_translation_segments", "vdos_rotation_segments", "vdos_vibration_segments",
-    "whole_molecule_count", "molecule_kind_count", "molecule_mass", "principal_moments",
+    "vdos_vibration_residual", "vdos_vibration_residual_segments", "whole_molecule_count", "molecule_kind_count", "molecule_mass", "principal_moments",
     "rotational_dof_per_molecule", "vibrational_dof_per_molecule",
     "translational_kinetic_temperature", "rotational_kinetic_temperature",
     "vibration_difference_integral", "self_diffusion_msd",
@@ -561,7 +592,7 @@ class MolecularPass:
         self.definition = definition
         self.decomposer = MolecularDecomposer(self.layout)
         self.accumulator = SegmentAccumulator(
-            settings, self.decomposer.channel_weights(), self.decomposer.channel_groups(), 3,
+            settings, self.decomposer.channel_weights(True), self.decomposer.channel_groups(True), 3,
             workers, first_segment=first_segment, stop_segment=stop_segment)
         self.msd = CentreOfMassDisplacement(self.layout.group_molecules, settings.timestep_ps,
                                             settings.segment_frames)
@@ -576,7 +607,7 @@ class MolecularPass:
         x = np.asarray(ts.positions[self.channel_indices], dtype=np.float64)
         if finite_difference_timestep_ps is not None:
             x = x - 0.5 * finite_difference_timestep_ps * v
-        values = self.decomposer.frame(x, v, ts.dimensions)
+        values = self.decomposer.frame(x, v, ts.dimensions, include_vibration=True)
         self.accumulator.add_frame(values)
         self.msd.add_frame(self.decomposer.unwrapped_com)
 
@@ -598,7 +629,8 @@ class MolecularPass:
         n_groups = lay.group_molecules.shape[0]
         factor = (ds["degrees_of_freedom"] / ds["raw_integral"]).values
         trn_seg = raw[:n_groups] * factor[:, None, None]
-        rot_seg = raw[n_groups:] * factor[:, None, None]
+        rot_seg = raw[n_groups:2 * n_groups] * factor[:, None, None]
+        res_seg = raw[2 * n_groups:] * factor[:, None, None]
         atoms_seg = ds["vdos_segments"].values
         vib_seg = atoms_seg - trn_seg - rot_seg
         wn = ds["wavenumber"].values
@@ -625,11 +657,13 @@ class MolecularPass:
         residual = np.trapezoid(vib_seg.mean(axis=1), wn, axis=-1)
         rigid = usable & np.isclose(vib_dof, 0.0)
         vib_seg[rigid] = 0.0  # rigid molecules: no vibrational part (difference kept as a check)
-        for arr in (trn_seg, rot_seg, vib_seg):
+        res_seg[rigid] = 0.0
+        for arr in (trn_seg, rot_seg, vib_seg, res_seg):
             arr[~usable] = np.nan
         raw_int = np.trapezoid(raw.mean(axis=1), wn, axis=-1)
         t_trn = temperature * raw_int[:n_groups] / np.where(usable, 3.0 * counts, np.nan)
-        t_rot = temperature * raw_int[n_groups:] / np.where(usable & (rot_dof > 0), rot_dof * counts, np.nan)
+        t_rot = temperature * raw_int[n_groups:2 * n_groups] / np.where(
+            usable & (rot_dof > 0), rot_dof * counts, np.nan)
         d_msd = self.msd.self_diffusion_m2_per_s()
         d_msd[~usable] = np.nan
         note = (f"molecules = {self.definition}s; vibration = difference DoS (atoms - translation - "
@@ -640,6 +674,8 @@ class MolecularPass:
             "vdos_translation": (g2, trn_seg.mean(axis=1), {"units": "cm", "long_name": "centre-of-mass (translational) density of states per unit wavenumber; integral = 3 per molecule", "comment": note}),
             "vdos_rotation": (g2, rot_seg.mean(axis=1), {"units": "cm", "long_name": "rotational density of states (principal-axis angular velocities weighted by the moments); integral = 3 (2 linear) per molecule", "comment": note}),
             "vdos_vibration": (g2, vib_seg.mean(axis=1), {"units": "cm", "long_name": "intramolecular vibrational density of states (vdos - translation - rotation; zero for rigid molecules)", "comment": note}),
+            "vdos_vibration_residual": (g2, res_seg.mean(axis=1), {"units": "cm", "long_name": "intramolecular vibrational density of states from the residual velocities v - V - w x r (non-negative; same integral as the difference; zero for rigid molecules)", "comment": note}),
+            "vdos_vibration_residual_segments": (g3, res_seg, {"units": "cm", "long_name": "residual-velocity vibrational density of states of each segment"}),
             "vdos_translation_segments": (g3, trn_seg, {"units": "cm", "long_name": "translational density of states of each segment"}),
             "vdos_rotation_segments": (g3, rot_seg, {"units": "cm", "long_name": "rotational density of states of each segment"}),
             "vdos_vibration_segments": (g3, vib_seg, {"units": "cm", "long_name": "vibrational density of states of each segment"}),

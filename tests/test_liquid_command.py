@@ -476,3 +476,54 @@ def test_viscosity_adds_the_yeh_hummer_correction(tmp_path, run_qcorr):
     assert side["self_diffusion_used_m2_per_s"] == pytest.approx(1.0e-3 + expected, rel=1e-12)
     code, _, err = run_qcorr("liquid", path, "--output", out, "--viscosity", "-1")
     assert code != 0 and "--viscosity" in err
+
+
+def test_vibration_spectrum_choice(tmp_path, run_qcorr):
+    # Flexible molecules: the residual-velocity spectrum (default) or the difference
+    # spectrum (which dips below zero near zero frequency, qcorr.molecular) feeds the
+    # vibrational part; each row must equal the harmonic entropy of the chosen spectrum
+    # (quantum oscillator weights, Berens et al. 1983), computed here independently by
+    # quadrature of W_S(u) = u/(e^u - 1) - ln(1 - e^-u).
+    import xarray as xr
+
+    path = _molecular_water_gas(tmp_path)
+    with xr.open_dataset(path, engine="h5netcdf") as src:
+        ds = src.load()
+    n = int(ds["whole_molecule_count"].values[0])
+    x = ds["wavenumber"].values
+    t = T298
+    x0 = 0.5 * x[-1]  # a band in the middle of the grid, u = c2 x0 / T
+    residual = np.exp(-0.5 * ((x - x0) / (0.02 * x0)) ** 2)
+    residual *= n / np.trapezoid(residual, x)  # one vibrational dof per molecule
+    difference = residual - 0.2 * n / x[-1] * np.exp(-x / (0.05 * x[-1]))
+    ns = ds.sizes["segment"]
+    for name, arr in (("vdos_vibration", difference), ("vdos_vibration_residual", residual)):
+        ds[name] = (("group", "wavenumber"), arr[None], {"units": "cm"})
+        ds[name + "_segments"] = (("group", "segment", "wavenumber"), np.tile(arr, (1, ns, 1)),
+                                  {"units": "cm"})
+    ds["vibrational_dof_per_molecule"] = (("group",), [1.0])
+    p2 = spectra.write_spectrum_file(ds, tmp_path / "flex.nc")
+
+    def w_s(u):
+        return u / np.expm1(u) - np.log(-np.expm1(-u))
+
+    results = {}
+    for choice, arr in (("residual", residual), ("difference", difference)):
+        out = tmp_path / f"{choice}.csv"
+        code, _, err = run_qcorr("liquid", p2, "--output", out, "--quiet", "--symmetry-number", "2",
+                                 "--vibration-spectrum", choice)
+        assert code == 0, err
+        got = _row(pd.read_csv(out), "total", "entropy_vibration")["quantum"]
+        from scipy.integrate import quad
+
+        u = C2 * x[1:] / t
+        # trapezoid from x1 on; the first interval (log-singular weight at 0) by adaptive
+        # quadrature of the linear interpolant
+        first = quad(lambda z: (arr[0] + (arr[1] - arr[0]) * z / x[1]) * w_s(C2 * z / t), 0, x[1],
+                     limit=200)[0]
+        expected = R * (np.trapezoid(arr[1:] * w_s(u), x[1:]) + first) / n
+        results[choice] = got
+        assert got == pytest.approx(expected, rel=1e-7)
+        side = json.loads(out.with_suffix(".json").read_text())
+        assert side["options"]["vibration_spectrum"] == choice
+    assert results["difference"] < results["residual"]

@@ -99,6 +99,12 @@ def test_vibration_is_orthogonal_to_translation_and_rotation():
     dec2 = mo.MolecularDecomposer(layout)
     flexible = dec2.frame(pos, vel + vib, BOX)
     np.testing.assert_allclose(flexible, rigid, atol=1e-10)
+    # the residual velocities are exactly the internal ones (zero for the rigid motion)
+    dec3 = mo.MolecularDecomposer(layout)
+    np.testing.assert_allclose(dec3.frame(pos, vel, BOX, include_vibration=True)[2:], 0.0, atol=1e-10)
+    dec4 = mo.MolecularDecomposer(layout)
+    np.testing.assert_allclose(dec4.frame(pos, vel + vib, BOX, include_vibration=True)[2:], vib,
+                               atol=1e-10)
 
 
 def test_spin_about_principal_axis_gives_constant_channels():
@@ -279,6 +285,7 @@ def test_rigid_tip3p_water_from_openmm_through_spectrum_command(tmp_path, run_qc
         assert float(ds["rotational_dof_per_molecule"].values[0]) == 3.0
         assert float(ds["vibrational_dof_per_molecule"].values[0]) == 0.0
         assert np.all(ds["vdos_vibration"].values[0] == 0.0)
+        assert np.all(ds["vdos_vibration_residual"].values[0] == 0.0)
         # exact kinetic-energy split of rigid bodies: difference integral ~ 0 (SETTLE tolerance)
         assert abs(float(ds["vibration_difference_integral"].values[0])) < 1e-3 * 6 * n
         # equipartition over a 6 ps NVE run of 129 molecules: a few per cent
@@ -327,6 +334,8 @@ def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp
         trn = np.trapezoid(ds["vdos_translation"].values, x, axis=-1)
         rot = np.trapezoid(ds["vdos_rotation"].values, x, axis=-1)
         vib = np.trapezoid(ds["vdos_vibration"].values, x, axis=-1)
+        residual = ds["vdos_vibration_residual_segments"].values[:2]
+        res = np.trapezoid(ds["vdos_vibration_residual"].values, x, axis=-1)
         groups = [str(g) for g in ds["group"].values]
         assert ds["rotational_dof_per_molecule"].values[groups.index("total")] == 2.0
         assert ds["vibrational_dof_per_molecule"].values[groups.index("total")] == 1.0
@@ -336,6 +345,10 @@ def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp
         assert abs(trn[g]) < 1e-9 * total[g]
         assert rot[g] + vib[g] == pytest.approx(total[g], rel=1e-9)
         assert rot[g] > 0 and vib[g] > 0
+        # residual-velocity spectrum: same integral as the difference (exact kinetic-energy
+        # split, see qcorr.molecular), and a power spectrum, so never negative
+        assert res[g] == pytest.approx(vib[g], rel=1e-9)
+    assert np.all(residual >= 0)
     # bad combinations are refused before the frame loop, and no file is written
     code, _, err = run_qcorr(*base, "--molecular", "--block", "1-of-2", "--output", tmp_path / "b.nc")
     assert code != 0 and "--molecular cannot be combined with --block" in err

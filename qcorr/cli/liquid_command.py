@@ -84,6 +84,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "2.837297 kT/(6 pi eta L) (cubic box, L = volume^(1/3)) to the "
                              "self-diffusion coefficient before 2PT (default: none, the periodic "
                              "system's own diffusion)")
+    parser.add_argument("--vibration-spectrum", choices=("residual", "difference"), default="residual",
+                        help="intramolecular vibration: spectrum of the residual velocities v - V - "
+                             "w x r (default; non-negative) or the difference spectrum vdos - "
+                             "translation - rotation (negative near zero frequency by the "
+                             "rotational S(0)); both integrate to the vibrational dof")
     parser.add_argument("--volume", metavar="A3", type=float, default=None,
                         help="system volume in cubic angstrom (default: the mean box volume of the "
                              "spectrum file)")
@@ -169,7 +174,7 @@ def _check_molecular_variables(ds, path) -> None:
             )
 
 
-def _group_input(ds, g: int, name: str, path) -> GroupInput | str:
+def _group_input(ds, g: int, name: str, path, vibration: str = "residual") -> GroupInput | str:
     """The group's 2PT input, or a string saying why the group cannot be used."""
     if "vdos_translation" in ds.variables:
         count = int(ds["whole_molecule_count"].values[g])
@@ -183,10 +188,15 @@ def _group_input(ds, g: int, name: str, path) -> GroupInput | str:
         if rot_dof > 0:
             parts["rotation"] = ds["vdos_rotation"].values[g]
             segs["rotation"] = ds["vdos_rotation_segments"].values[g]
-        vib = ds["vdos_vibration"].values[g]
-        if float(ds["vibrational_dof_per_molecule"].values[g]) > 0 and np.any(vib != 0):
-            parts["vibration"] = vib
-            segs["vibration"] = ds["vdos_vibration_segments"].values[g]
+        if float(ds["vibrational_dof_per_molecule"].values[g]) > 0:
+            name_vib = "vdos_vibration_residual" if vibration == "residual" else "vdos_vibration"
+            if name_vib not in ds.variables:
+                raise SpectrumFileError(
+                    f"spectrum file '{path}' has no '{name_vib}'; remake it with this qcorr's "
+                    "'qcorr spectrum --molecular' or pass --vibration-spectrum difference"
+                )
+            parts["vibration"] = ds[name_vib].values[g]
+            segs["vibration"] = ds[name_vib + "_segments"].values[g]
         return GroupInput(
             name, count, float(ds["molecule_mass"].values[g]), parts, segs,
             ds["principal_moments"].values[g] if rot_dof > 0 else None,
@@ -362,7 +372,7 @@ def run(args: argparse.Namespace) -> int:
     wanted = args.groups or names
     for name in wanted:
         g = names.index(name)
-        gin = _group_input(ds, g, name, spectrum_path)
+        gin = _group_input(ds, g, name, spectrum_path, args.vibration_spectrum)
         if isinstance(gin, str):
             if args.groups:
                 raise PhysicsError(f"spectrum file '{spectrum_path}', group '{name}' {gin}")
@@ -417,7 +427,7 @@ def run(args: argparse.Namespace) -> int:
         notes += _warn_checks(gin, result, seg_results, k_eff, wavenumber, temperature)
         note = (f"2PT per mole of molecules; hard-sphere entropy {args.hard_sphere_entropy}, gas volume "
                 f"{args.gas_volume}, rotational fluidicity {args.rotational_fluidicity}, zero-frequency "
-                f"value from {args.diffusion_from}"
+                f"value from {args.diffusion_from}, vibration spectrum {args.vibration_spectrum}"
                 + (f" + Yeh-Hummer correction (viscosity {args.viscosity:g} Pa s)" if args.viscosity else ""))
         rows += _rows(system, gin, result, seg_results, k_eff, temperature, md_energy.get(name), note)
         info[name] = {
@@ -469,6 +479,7 @@ def run(args: argparse.Namespace) -> int:
             "gas_volume": args.gas_volume,
             "diffusion_from": args.diffusion_from,
             "viscosity_Pa_s": args.viscosity,
+            "vibration_spectrum": args.vibration_spectrum,
             "volume_A3": volume,
             "md_energy_kJ_per_mol": md_energy,
         },
