@@ -35,7 +35,7 @@ def main(n_mol: int = 5000, n_frames: int = 200) -> None:
     dec = MolecularDecomposer(layout)
     settings = SpectrumSettings(0.004, 100, 0.5, "hann")
     atoms = SegmentAccumulator(settings, masses, groups)
-    mols = SegmentAccumulator(settings, dec.channel_weights(), dec.channel_groups())
+    mols = SegmentAccumulator(settings, dec.channel_weights(True), dec.channel_groups(True))
     vel = rng.normal(size=(n_frames, masses.size, 3)) * np.sqrt(2.494 * 100 / masses)[None, :, None]
     t0 = time.perf_counter()
     for f in range(n_frames):
@@ -43,7 +43,7 @@ def main(n_mol: int = 5000, n_frames: int = 200) -> None:
     t_atoms = time.perf_counter() - t0
     t0 = time.perf_counter()
     for f in range(n_frames):
-        values = dec.frame(pos, vel[f], box)
+        values = dec.frame(pos, vel[f], box, include_vibration=True)
     t_decompose = time.perf_counter() - t0
     t0 = time.perf_counter()
     for f in range(n_frames):
