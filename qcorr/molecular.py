@@ -76,8 +76,8 @@ __all__ = [
     "DEFAULT_LINEAR_RATIO",
     "MOLECULE_DEFINITIONS",
     "CentreOfMassDisplacement",
-    "MoleculeLayout",
     "MolecularDecomposer",
+    "MoleculeLayout",
     "build_layout",
     "molecule_ids_from_universe",
 ]

@@ -75,8 +75,8 @@ __all__ = [
     "ROTATIONAL_FLUIDICITY_CHOICES",
     "ComponentResult",
     "carnahan_starling_compressibility",
-    "fluidicity",
     "finite_size_diffusion_correction",
+    "fluidicity",
     "fluidicity_equation",
     "gas_dos",
     "gas_packing_fraction",
@@ -707,8 +707,8 @@ def two_phase_group(
         )
     if "translation" not in parts:
         raise ConfigError("2PT needs a translational density of states")
-    common = dict(molecule_count=molecule_count, temperature_K=temperature_K, mass_u=mass_u,
-                  volume_A3=volume_A3)
+    common = {"molecule_count": molecule_count, "temperature_K": temperature_K, "mass_u": mass_u,
+                  "volume_A3": volume_A3}
     comps: dict[str, ComponentResult] = {}
     comps["translation"] = two_phase_component(
         "translation", wavenumber_cm, parts["translation"], **common,

@@ -14,7 +14,7 @@ from scipy import constants as sc
 
 sys.path.insert(0, str(Path(__file__).parent))
 
-import spectra  # noqa: E402
+import spectra
 
 R = sc.R
 T298 = 298.15
@@ -57,7 +57,7 @@ def test_ideal_gas_argon_gives_sackur_tetrode(argon_gas_file, tmp_path, run_qcor
     # CODATA key value S(Ar, g, 298.15 K, 1 bar) = 154.846 +- 0.003 J/(mol K)
     # (Cox, Wagman, Medvedev 1989; NIST-JANAF): the f -> 1 limit of 2PT, 0.1 %.
     out = tmp_path / "argon.csv"
-    code, stdout, err = run_qcorr("liquid", argon_gas_file, "--output", out, "--quiet")
+    code, _, err = run_qcorr("liquid", argon_gas_file, "--output", out, "--quiet")
     assert code == 0, err
     frame = pd.read_csv(out)
     s = _row(frame, "total", "entropy")
@@ -196,7 +196,7 @@ def test_split_output_and_options_recorded(tmp_path, run_qcorr):
     with xr.open_dataset(split, engine="h5netcdf") as sp:
         gas = sp["vdos_gas"].sel(group="total", component="translation").values
         solid = sp["vdos_solid"].sel(group="total", component="translation").values
-        x = sp["wavenumber"].values
+        assert sp["wavenumber"].attrs["units"] == "cm-1"
     with xr.open_dataset(path, engine="h5netcdf") as src:
         trn = src["vdos_translation"].values[0]
     np.testing.assert_allclose(gas + solid, trn, rtol=1e-12)  # split is exact by construction
@@ -281,7 +281,7 @@ def jzg_residual_helmholtz(t, rho, gamma=3.0):
 
 def jzg_residual_energy_entropy(t, rho, h=1e-5):
     """(U_res/(N eps), S_res/(N k)) from A_res by U = -T^2 d(A/T)/dT, S = (U - A)/T."""
-    f = lambda tt: jzg_residual_helmholtz(tt, rho) / tt  # noqa: E731
+    f = lambda tt: jzg_residual_helmholtz(tt, rho) / tt
     u = -t * t * (f(t + h) - f(t - h)) / (2 * h)
     return u, (u - jzg_residual_helmholtz(t, rho)) / t
 
@@ -292,8 +292,8 @@ def test_jzg_implementation_reproduces_second_virial_coefficient():
     from scipy.integrate import quad
 
     for t in (1.0, 2.0, 5.0):
-        b2 = quad(lambda r: -2 * math.pi * r * r * (math.exp(-4 * (r**-12 - r**-6) / t) - 1), 0, 50,
-                  limit=500)[0]
+        b2 = quad(lambda r, t=t: -2 * math.pi * r * r * (math.exp(-4 * (r**-12 - r**-6) / t) - 1),
+                  0, 50, limit=500)[0]
         rho = 1e-7
         assert jzg_residual_helmholtz(t, rho) / (rho * t) == pytest.approx(b2, rel=2e-3)
 
@@ -344,9 +344,9 @@ def _run_lj_argon(n_side=6, rho_star=0.8, t_star=1.0, frames=3000, steps_per_fra
         pot[f] = s.getPotentialEnergy().value_in_unit(U.kilojoule_per_mole)
         kin[f] = s.getKineticEnergy().value_in_unit(U.kilojoule_per_mole)
         verlet.step(steps_per_frame)
-    return dict(positions=pos, velocities=vel, potential=pot, kinetic=kin, n=n, eps=eps,
-                eps_K=eps_K, sigma_A=sigma_nm * 10, box_A=box * 10, mass=mass,
-                timestep_ps=steps_per_frame * dt_fs / 1000)
+    return {"positions": pos, "velocities": vel, "potential": pot, "kinetic": kin, "n": n, "eps": eps,
+                "eps_K": eps_K, "sigma_A": sigma_nm * 10, "box_A": box * 10, "mass": mass,
+                "timestep_ps": steps_per_frame * dt_fs / 1000}
 
 
 @pytest.mark.slow
@@ -519,7 +519,7 @@ def test_vibration_spectrum_choice(tmp_path, run_qcorr):
         u = C2 * x[1:] / t
         # trapezoid from x1 on; the first interval (log-singular weight at 0) by adaptive
         # quadrature of the linear interpolant
-        first = quad(lambda z: (arr[0] + (arr[1] - arr[0]) * z / x[1]) * w_s(C2 * z / t), 0, x[1],
+        first = quad(lambda z, a=arr: (a[0] + (a[1] - a[0]) * z / x[1]) * w_s(C2 * z / t), 0, x[1],
                      limit=200)[0]
         expected = R * (np.trapezoid(arr[1:] * w_s(u), x[1:]) + first) / n
         results[choice] = got

@@ -232,10 +232,9 @@ def test_rigid_tip3p_water_from_openmm_through_spectrum_command(tmp_path, run_qc
     import MDAnalysis as mda
     import openmm as mm
     import pandas as pd
+    import synthetic
     from openmm import app
     from openmm import unit as U
-
-    import synthetic
 
     ff = app.ForceField("tip3p.xml")
     mod = app.Modeller(app.Topology(), [])
@@ -318,7 +317,6 @@ def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp
     # Koenig's theorem) and every bit of kinetic energy is rotation + vibration of a
     # linear (two-atom) molecule: 2 rotational dof, 1 vibrational dof per molecule.
     import xarray as xr
-
     from conftest import OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
 
     base = ["spectrum", "--topology", oscillator_files["topology"], "--trajectory",

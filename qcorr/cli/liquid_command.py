@@ -35,18 +35,26 @@ DESCRIPTION = (
 
 #: cautions written with every 2PT table
 TWO_PHASE_CAUTIONS = (
-    "Two-phase model: the gas-like part is a hard-sphere gas with an exponential velocity "
-    "autocorrelation (Enskog) and the solid-like part a set of harmonic oscillators; the "
-    "hard-sphere tail is unphysical at high frequency and the heat capacity lacks the "
-    "anharmonic (configurational) part (Madarasz et al. 2021).",
-    "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) follow the "
-    "team's reconstruction of Lin et al. (2003, 2010); the printed equations were not re-read "
-    "for this version. The alternatives are options and are listed in this sidecar.",
-    "The classical column uses classical harmonic weights on the solid-like part (compare with "
-    "classical references such as a Lennard-Jones equation of state); the quantum column uses "
-    "quantum weights. Energy and free energy are absolute only with --md-energy.",
-    "Standard errors come from the per-segment spectra (fluidicity solved per segment); with "
-    "--diffusion-from msd the zero-frequency value is held fixed and its error is not included.",
+    (
+        "Two-phase model: the gas-like part is a hard-sphere gas with an exponential velocity "
+        "autocorrelation (Enskog) and the solid-like part a set of harmonic oscillators; the "
+        "hard-sphere tail is unphysical at high frequency and the heat capacity lacks the "
+        "anharmonic (configurational) part (Madarasz et al. 2021)."
+    ),
+    (
+        "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) follow the "
+        "team's reconstruction of Lin et al. (2003, 2010); the printed equations were not re-read "
+        "for this version. The alternatives are options and are listed in this sidecar."
+    ),
+    (
+        "The classical column uses classical harmonic weights on the solid-like part (compare with "
+        "classical references such as a Lennard-Jones equation of state); the quantum column uses "
+        "quantum weights. Energy and free energy are absolute only with --md-energy."
+    ),
+    (
+        "Standard errors come from the per-segment spectra (fluidicity solved per segment); with "
+        "--diffusion-from msd the zero-frequency value is held fixed and its error is not included."
+    ),
 )
 
 
@@ -201,7 +209,7 @@ def _group_input(ds, g: int, name: str, path, vibration: str = "residual") -> Gr
             name, count, float(ds["molecule_mass"].values[g]), parts, segs,
             ds["principal_moments"].values[g] if rot_dof > 0 else None,
             float(ds["self_diffusion_msd"].values[g]), "molecular decomposition",
-            int(round(rot_dof)) if rot_dof > 0 else None,
+            round(rot_dof) if rot_dof > 0 else None,
         )
     atoms = int(ds["atom_count"].values[g])
     molecules = int(ds["molecule_count"].values[g])
@@ -246,8 +254,8 @@ def _rows(system, gin, result, seg_results, k_eff, temperature, md_energy, note)
             return [getattr(r, attr) for r in seg_results]
         return [getattr(r.components[comp], attr) for r in seg_results]
 
-    base = dict(system=system, group=gin.name, method="2pt", temperature_K=temperature,
-                basis="per_mole_molecules")
+    base = {"system": system, "group": gin.name, "method": "2pt", "temperature_K": temperature,
+                "basis": "per_mole_molecules"}
     for prop in ("entropy", "heat_capacity"):
         q = getattr(result, prop) * R
         c = getattr(result, prop + "_classical") * R
@@ -388,7 +396,7 @@ def run(args: argparse.Namespace) -> int:
         t_kin = float(ds["kinetic_temperature"].values[g])
         t_kin = t_kin if math.isfinite(t_kin) and t_kin > 0 else temperature
 
-        def s0_of(d_m2_per_s: float) -> float:
+        def s0_of(d_m2_per_s: float, gin=gin, t_kin=t_kin) -> float:
             return (d_m2_per_s * 12.0 * gin.mass_u * C.atomic_mass_kg * gin.molecule_count
                     / (C.boltzmann_J_per_K * t_kin) * C.speed_of_light_cm_per_s)
 
@@ -412,11 +420,11 @@ def run(args: argparse.Namespace) -> int:
             s0_segments = [float(v[0]) + s0_of(d_correction)
                            for v in gin.part_segments["translation"]]
             d_used = d_spectrum + d_correction
-        options = dict(molecule_count=gin.molecule_count, temperature_K=temperature, mass_u=gin.mass_u,
-                       volume_A3=volume, principal_moments_u_A2=gin.principal_moments,
-                       symmetry_number=sigma, hard_sphere_form=args.hard_sphere_entropy,
-                       gas_volume=args.gas_volume, rotational_fluidicity=args.rotational_fluidicity,
-                       rotational_dof_per_molecule=gin.rotational_dof)
+        options = {"molecule_count": gin.molecule_count, "temperature_K": temperature, "mass_u": gin.mass_u,
+                       "volume_A3": volume, "principal_moments_u_A2": gin.principal_moments,
+                       "symmetry_number": sigma, "hard_sphere_form": args.hard_sphere_entropy,
+                       "gas_volume": args.gas_volume, "rotational_fluidicity": args.rotational_fluidicity,
+                       "rotational_dof_per_molecule": gin.rotational_dof}
         result = twophase.two_phase_group(wavenumber, gin.parts, translation_zero_frequency_cm=s0,
                                           **options)
         seg_results = [
