@@ -294,3 +294,18 @@ def test_linear_rotor_rotation_component():
     assert np.trapezoid(res.gas_dos, x) == pytest.approx(2 * n * res.fluidicity, rel=1e-4)
     assert res.entropy * R == pytest.approx(41.144, abs=0.01)
     assert res.heat_capacity == pytest.approx(1.0, rel=1e-3)  # 2 x k/2
+
+
+def test_weighted_integral_keeps_leading_axes_and_refuses_bad_grids():
+    # Docstring claims: leading axes are kept; the grid must start at 0 cm^-1.
+    x = np.linspace(0, 500, 501)
+    s = np.stack([np.exp(-((x - 200) / 30) ** 2), np.exp(-((x - 300) / 20) ** 2)])
+    both = tp.weighted_integral(x, s, 300.0)
+    for i in range(2):
+        one = tp.weighted_integral(x, s[i], 300.0)
+        for key in ("entropy", "energy", "heat_capacity", "energy_minus_classical", "dof"):
+            assert both[key][i] == pytest.approx(one[key], rel=1e-14)
+    with pytest.raises(ConfigError, match="start at 0"):
+        tp.weighted_integral(x + 1.0, s[0], 300.0)
+    with pytest.raises(ConfigError, match="weighting"):
+        tp.weighted_integral(x, s[0], 300.0, "semi-classical")
