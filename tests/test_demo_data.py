@@ -31,6 +31,7 @@ SCRIPT = ROOT / "scripts" / "make_demo_data.py"
 def _load_script():
     spec = importlib.util.spec_from_file_location("make_demo_data", SCRIPT)
     module = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = module  # dataclasses look their module up here
     sys.path.insert(0, str(SCRIPT.parent))
     try:
         spec.loader.exec_module(module)
