@@ -6,7 +6,9 @@ slurmctld, slurmd and munge on localhost) and stops it afterwards.
 
 * Without a cluster the tests are skipped with the reason, unless the environment
   variable ``CI`` is set (non-empty, not ``false``/``0``): then a missing cluster is
-  a failure, so that CI cannot pass by skipping them.
+  a failure, so that CI cannot pass by skipping them.  A cluster other than the
+  throwaway one (its slurm.conf says ``ClusterName=qcorrci``) counts as missing: the
+  tests submit jobs and the CI profile names the test cluster's partition.
 * The workflow runs with the CI-only global profile ``.ci/slurm/profile.yaml``
   (``executor: slurm``; job status from ``squeue``, since the test cluster keeps no
   accounting database and ``sacct`` cannot answer), wrapped in ``timeout -k`` so
@@ -34,6 +36,8 @@ REPO = Path(__file__).resolve().parents[1]
 PROFILE_DIR = REPO / ".ci" / "slurm"
 SNAKEFILE = REPO / "workflow" / "Snakefile"
 
+#: ClusterName in the slurm.conf written by .ci/slurm/start.sh
+TEST_CLUSTER_NAME = "qcorrci"
 #: hard limit for one Snakemake run, s (the demo takes about a minute on 2 cores)
 RUN_LIMIT_S = 900
 #: grace period after SIGTERM before SIGKILL (Snakemake may ignore SIGTERM while it waits)
@@ -49,7 +53,7 @@ def ci_is_set() -> bool:
 
 def cluster_problem() -> str | None:
     """Why no usable SLURM cluster is reachable, or None when one is."""
-    for tool in ("sinfo", "sbatch", "squeue", "scancel"):
+    for tool in ("sinfo", "sbatch", "squeue", "scancel", "scontrol"):
         if shutil.which(tool) is None:
             return f"the SLURM client command {tool!r} is not installed"
     try:
@@ -69,6 +73,24 @@ def cluster_problem() -> str | None:
     found = [s.strip().rstrip("*~#") for s in states.stdout.split()]
     if not usable.intersection(found):
         return f"no SLURM node is up (node states: {', '.join(found) or 'none'})"
+    config = subprocess.run(
+        ["scontrol", "show", "config"],
+        check=False,
+        capture_output=True,
+        text=True,
+        timeout=20,
+    )
+    settings = dict(
+        (part.strip() for part in line.split("=", 1))
+        for line in config.stdout.splitlines()
+        if "=" in line
+    )
+    if settings.get("ClusterName") != TEST_CLUSTER_NAME:
+        return (
+            f"the running cluster {settings.get('ClusterName', '?')!r} is not the throwaway test "
+            f"cluster (ClusterName={TEST_CLUSTER_NAME}) that .ci/slurm/start.sh makes; these "
+            "tests submit jobs and the CI profile names its partition, so they run only there"
+        )
     return None
 
 
