@@ -312,7 +312,15 @@ def taper_window(settings: SpectrumSettings) -> NDArray[np.float64]:
 
 
 class SegmentAccumulator:
-    """Streams frames; holds one segment (L x n_channels x n_components, float64) plus FFT workspace.
+    """Streams frames; holds one segment (L x n_channels x n_components) plus FFT workspace.
+
+    Precision follows the first frame: float32 frames (as MDAnalysis reads them) are
+    buffered and transformed in single precision (complex64), other input in float64.
+    Group sums over one chunk of channels are formed in the working precision and
+    accumulated in float64; results are always float64.  Single precision differs from
+    double by about the FFT rounding bound, ``log2(2L) x 2^-24`` relative to the total
+    power (N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. (2002),
+    section 24.1), far below the statistical error of any spectrum from MD.
 
     Memory does not depend on the number of frames: with 50 % overlap the frame
     buffer is half a segment (two halves when a background thread is used) and the
@@ -402,33 +410,19 @@ class SegmentAccumulator:
         # the two segments that contain it; otherwise each segment is transformed whole.
         self._half_overlap = _route == "auto" and settings.hop_frames == half
         if self._half_overlap:
-            # frame-major buffer of one half segment (frame f lives in row f % half) and the
-            # L-point transforms of the previous half segment, one array per chunk of rows
-            self.buffer = np.zeros((half, rows))
             # with two or more threads, the finished half segment is transformed by a
             # background thread while the caller fills a second buffer (numpy and pocketfft
             # release the GIL); results are identical to the serial order
             self._pipelined = self.workers >= 2
-            self._spare = np.zeros((half, rows)) if self._pipelined else None
-            chunk = max(8, _CHUNK_BYTES // (L * 8))
-            self._chunk = min(rows, chunk)
-            self.workspace = np.zeros((self._chunk, L))
-            self._previous: list[NDArray[np.complex128]] = []
+            self._chunk = min(rows, max(8, _CHUNK_BYTES // (L * 8)))
+            self._previous: list[NDArray[np.complexfloating]] = []
             self._previous_auto: NDArray[np.float64] | None = None
-            self._combined = np.zeros((self._chunk, half + 1), dtype=np.complex128)
-            # e^{-i 2 pi m hop / L} = (-1)^m: phase of the second half in the segment's DFT
-            # (float view: real and imaginary part of each bin share the sign)
-            self._alternating = np.repeat(np.where(np.arange(half + 1) % 2 == 0, 1.0, -1.0), 2)
         else:
-            # ring buffer of one segment, frame-major: frame f lives in row f % L
-            self.buffer = np.zeros((L, rows))
             self._pipelined = False
-            chunk = max(8, _CHUNK_BYTES // (2 * L * 8))
-            self._chunk = min(rows, chunk)
-            # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
-            self.workspace = np.zeros((self._chunk, 2 * L))
-            self._even = np.zeros((self._chunk, half + 1), dtype=np.complex128)
-        self._tapered = np.zeros((self._chunk, half + 1), dtype=np.complex128)
+            self._chunk = min(rows, max(8, _CHUNK_BYTES // (2 * L * 8)))
+        # frame buffer and FFT workspace are allocated at the first frame, in its precision
+        self.dtype: np.dtype | None = None
+        self.buffer: NDArray[np.floating] | None = None
         window = taper_window(settings)
         self._window_power = float(np.sum(window * window))
         self._fft_workers = max(1, self.workers - 1) if self._pipelined else self.workers
@@ -438,6 +432,41 @@ class SegmentAccumulator:
         self._power: list[NDArray[np.float64]] = []
         self._correlation: list[NDArray[np.float64]] = []
         self._first_frames: list[int] = []
+
+    def _allocate(self, dtype: np.dtype) -> None:
+        """Frame buffer and FFT workspace in *dtype* (float32 or float64).
+
+        float32 frames (as MDAnalysis reads every format) are buffered and transformed
+        in single precision (complex64 transforms); the products of transforms are summed
+        over the rows of one chunk (at most a few hundred) in single precision and
+        accumulated across chunks, halves and segments in float64.  Any other input is
+        processed in float64 throughout.
+        """
+        L = self.settings.segment_frames
+        half = L // 2
+        rows, chunk = self._rows, self._chunk
+        complex_dtype = np.result_type(dtype, np.complex64)
+        self.dtype = np.dtype(dtype)
+        self._work_weights = self._row_weights.astype(dtype)
+        if self._half_overlap:
+            # frame-major buffer of one half segment (frame f lives in row f % half) and the
+            # L-point transforms of the previous half segment, one array per chunk of rows
+            self.buffer = np.zeros((half, rows), dtype)
+            self._spare = np.zeros((half, rows), dtype) if self._pipelined else None
+            self.workspace = np.zeros((chunk, L), dtype)
+            self._combined = np.zeros((chunk, half + 1), complex_dtype)
+            # e^{-i 2 pi m hop / L} = (-1)^m: phase of the second half in the segment's DFT
+            # (float view: real and imaginary part of each bin share the sign)
+            self._alternating = np.repeat(
+                np.where(np.arange(half + 1) % 2 == 0, 1.0, -1.0), 2
+            ).astype(dtype)
+        else:
+            # ring buffer of one segment, frame-major: frame f lives in row f % L
+            self.buffer = np.zeros((L, rows), dtype)
+            # zero-padded FFT input for one chunk of rows; columns L..2L-1 stay zero
+            self.workspace = np.zeros((chunk, 2 * L), dtype)
+            self._even = np.zeros((chunk, half + 1), complex_dtype)
+        self._tapered = np.zeros((chunk, half + 1), complex_dtype)
 
     @property
     def frames_fed(self) -> int:
@@ -469,6 +498,8 @@ class SegmentAccumulator:
                 f"frame {self._frames_fed} has values of shape {values.shape}, expected "
                 f"({self.n_channels}, {self.n_components})"
             )
+        if self.buffer is None:
+            self._allocate(np.float32 if values.dtype == np.float32 else np.float64)
         L, hop = self.settings.segment_frames, self.settings.hop_frames
         wanted = self._segments_wanted()
         if wanted is not None and self._frames_fed >= (wanted - 1) * hop + L:
@@ -496,7 +527,7 @@ class SegmentAccumulator:
             self._transform_segment(start)
 
     def _add_tapered_power(
-        self, x: NDArray[np.complex128], w: NDArray[np.float64], power: NDArray[np.float64]
+        self, x: NDArray[np.complexfloating], w: NDArray[np.floating], power: NDArray[np.float64]
     ) -> None:
         """``power += w @ |4 Y|^2`` (interleaved re^2, im^2) for the L-point DFT *x* of a segment.
 
@@ -510,7 +541,8 @@ class SegmentAccumulator:
         if self.settings.taper == "hann":
             # on the flattened float views a shift by one complex bin is a shift by two floats;
             # contiguous 1-d operations are several times faster than 2-d slices
-            xf, yf = x.view(np.float64).reshape(-1), y.view(np.float64).reshape(-1)
+            real = self.dtype
+            xf, yf = x.view(real).reshape(-1), y.view(real).reshape(-1)
             np.multiply(xf, 2.0, out=yf)
             np.subtract(yf[2:-2], xf[:-4], out=yf[2:-2])
             np.subtract(yf[2:-2], xf[4:], out=yf[2:-2])
@@ -520,9 +552,9 @@ class SegmentAccumulator:
             y[:, -1] = 2.0 * (x[:, -1] - x[:, -2].real)
         else:
             np.copyto(y, x)
-        yf = y.view(np.float64)
+        yf = y.view(self.dtype)
         np.multiply(yf, yf, out=yf)
-        power += np.einsum("gr,rf->gf", w, yf)
+        power += w @ yf
 
     def _store_segment(
         self,
@@ -556,7 +588,7 @@ class SegmentAccumulator:
             pending, self._pending = self._pending, None
             pending.result()
 
-    def _transform_half(self, block: NDArray[np.float64], frames_fed: int) -> None:
+    def _transform_half(self, block: NDArray[np.floating], frames_fed: int) -> None:
         """Transform the half segment just completed; finish the segment it closes (if any).
 
         With ``L = 2H`` a segment is two halves ``A`` (first) and ``B``.  Their ``L``-point
@@ -583,16 +615,16 @@ class SegmentAccumulator:
             work = self.workspace[:n]
             work[:, :H] = block[:, c0:c1].T  # columns H..L-1 stay zero
             b = scipy.fft.rfft(work, axis=-1, workers=self._fft_workers)
-            w = self._row_weights[:, c0:c1]
+            w = self._work_weights[:, c0:c1]
             scratch = self._combined[:n]
-            bf, sf = b.view(np.float64), scratch.view(np.float64)
+            bf, sf = b.view(self.dtype), scratch.view(self.dtype)
             np.multiply(bf, bf, out=sf)
-            auto += np.einsum("gr,rf->gf", w, sf)
+            auto += w @ sf
             if have_previous:
                 a = self._previous[index]
                 np.conjugate(a, out=scratch)
                 np.multiply(scratch, b, out=scratch)
-                cross += np.einsum("gr,rf->gf", w, sf)
+                cross += w @ sf
                 np.multiply(bf, self._alternating, out=sf)
                 np.add(scratch, a, out=scratch)
                 self._add_tapered_power(scratch, w, power)
@@ -624,13 +656,13 @@ class SegmentAccumulator:
             if r:
                 work[:, L - r : L] = self.buffer[:r, c0:c1].T
             z = scipy.fft.rfft(work, n=2 * L, axis=-1, workers=self._fft_workers)
-            w = self._row_weights[:, c0:c1]
+            w = self._work_weights[:, c0:c1]
             x = self._even[:n]
             np.copyto(x, z[:, ::2])  # L-point DFT of the untapered segment, m = 0 .. L/2
             self._add_tapered_power(x, w, power)
-            zf = z.view(np.float64)
+            zf = z.view(self.dtype)
             np.multiply(zf, zf, out=zf)
-            corr_spectrum += np.einsum("gr,rf->gf", w, zf)
+            corr_spectrum += w @ zf
         corr_spectrum = corr_spectrum[:, 0::2] + corr_spectrum[:, 1::2]
         self._store_segment(power, corr_spectrum, None, start)
 
