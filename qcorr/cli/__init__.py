@@ -13,7 +13,9 @@ Errors of the :class:`qcorr.errors.QcorrError` family are printed as one line,
 from __future__ import annotations
 
 import argparse
+import ast
 import importlib
+import importlib.util
 import shlex
 import sys
 import warnings
@@ -45,7 +47,79 @@ def _load_commands() -> list:
     return modules
 
 
-def build_parser() -> argparse.ArgumentParser:
+class _CommandSummary:
+    """``NAME``/``HELP``/``DESCRIPTION`` of a command module read from its source, not imported.
+
+    Some command modules import heavy libraries (xarray, pandas, scipy.optimize) at the
+    top; reading their constant strings with :mod:`ast` keeps ``qcorr --help`` and the
+    parsing of another command fast.  Only used for subcommands that are not run.
+    """
+
+    def __init__(self, name: str) -> None:
+        self.NAME = name
+        self.HELP = ""
+        spec = importlib.util.find_spec(f"qcorr.cli.{name}_command")
+        if spec is None or spec.origin is None:
+            raise ModuleNotFoundError(name=f"qcorr.cli.{name}_command")
+        with open(spec.origin, encoding="utf-8") as fh:
+            tree = ast.parse(fh.read(), filename=spec.origin)
+        for node in tree.body:
+            if isinstance(node, ast.Assign) and len(node.targets) == 1:
+                target = node.targets[0]
+                if isinstance(target, ast.Name) and target.id in ("NAME", "HELP", "DESCRIPTION"):
+                    try:
+                        setattr(self, target.id, ast.literal_eval(node.value))
+                    except ValueError:
+                        pass
+
+    @staticmethod
+    def add_arguments(parser: argparse.ArgumentParser) -> None:
+        """Not run: no options are needed."""
+
+    @staticmethod
+    def run(args: argparse.Namespace) -> int:  # pragma: no cover - never selected
+        raise RuntimeError("summary of a command that was not loaded")
+
+
+def _chosen_command(argv: Sequence[str]) -> str | None:
+    """The subcommand named on the command line (the first word not starting with '-')."""
+    for word in argv:
+        if word == "--":
+            return None
+        if not word.startswith("-"):
+            return word
+    return None
+
+
+def _commands_for(argv: Sequence[str] | None) -> list:
+    """Command modules for *argv*: only the chosen one is imported, the others summarised."""
+    if argv is None:
+        return _load_commands()
+    chosen = _chosen_command(argv)
+    commands = []
+    for name in COMMAND_MODULES:
+        full = f"qcorr.cli.{name}_command"
+        try:
+            if name == chosen:
+                commands.append(importlib.import_module(full))
+            else:
+                commands.append(_CommandSummary(name))
+        except ModuleNotFoundError as err:
+            if err.name != full:
+                raise
+    return commands
+
+
+def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
+    """The ``qcorr`` parser.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        The command line to be parsed.  When given, only the subcommand it names is
+        imported and gets its full options (the others are listed by name and help line);
+        when None every command module is imported.
+    """
     parser = argparse.ArgumentParser(
         prog="qcorr",
         description=(
@@ -57,7 +131,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"qcorr {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
-    for module in _load_commands():
+    for module in _commands_for(argv):
         p = sub.add_parser(
             module.NAME,
             help=module.HELP,
@@ -80,7 +154,7 @@ def _show_warning(message, category, filename, lineno, file=None, line=None) -> 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``qcorr`` console script."""
     argv = list(sys.argv[1:] if argv is None else argv)
-    parser = build_parser()
+    parser = build_parser(argv)
     args = parser.parse_args(argv)
     args.command_line = shlex.join(["qcorr", *argv])
     warnings.showwarning = _show_warning
