@@ -36,6 +36,7 @@ from __future__ import annotations
 import hashlib
 import os
 import re
+import threading
 import warnings
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -303,22 +304,86 @@ def check_complete(opened: OpenedTrajectory) -> None:
             )
 
 
-def describe_files(paths: Sequence[str | os.PathLike[str]]) -> list[dict[str, object]]:
-    """Name, size (bytes) and SHA-256 of each input file, for provenance.
+def describe_files(
+    paths: Sequence[str | os.PathLike[str]], _cancel: threading.Event | None = None
+) -> list[dict[str, object]]:
+    """Name, size (bytes) and SHA-256 (FIPS 180-4, via :mod:`hashlib`) of each input file.
 
-    The hash is read in 1 MiB chunks, so large trajectories are not held in memory.
+    Files are read in 1 MiB blocks into one reused buffer, so large trajectories are not
+    held in memory; hashlib releases the GIL while it digests a block, so this can run in
+    a background thread beside the frame loop (:func:`start_describing_files`).
+
+    Raises
+    ------
+    TrajectoryError
+        If a file cannot be read (names the file).
     """
     records = []
+    buffer = bytearray(1 << 20)
+    view = memoryview(buffer)
     for path in paths:
         path = Path(path)
         digest = hashlib.sha256()
-        with path.open("rb") as fh:
-            for chunk in iter(lambda: fh.read(1 << 20), b""):
-                digest.update(chunk)
-        records.append(
-            {"name": path.name, "size_bytes": path.stat().st_size, "sha256": digest.hexdigest()}
-        )
+        try:
+            with path.open("rb", buffering=0) as fh:
+                while True:
+                    if _cancel is not None and _cancel.is_set():
+                        return records
+                    n = fh.readinto(buffer)
+                    if not n:
+                        break
+                    digest.update(view[:n])
+            size = path.stat().st_size
+        except OSError as err:
+            raise TrajectoryError(
+                f"cannot read '{path}' to record its SHA-256 ({err.strerror or err}); "
+                "check that the file exists and is readable"
+            ) from None
+        records.append({"name": path.name, "size_bytes": size, "sha256": digest.hexdigest()})
     return records
+
+
+class FileDescriptions:
+    """:func:`describe_files` running in a background thread; :meth:`result` waits for it.
+
+    The SHA-256 of a large trajectory costs about as much CPU as a tenth of reading
+    it with MDAnalysis; hashing while the frames are read hides that time on a machine
+    with a free core.  :meth:`cancel` stops the thread at the next 1 MiB block (used when
+    the command fails).
+    """
+
+    def __init__(self, paths: Sequence[str | os.PathLike[str]]) -> None:
+        self._paths = list(paths)
+        self._cancel = threading.Event()
+        self._records: list[dict[str, object]] | None = None
+        self._error: BaseException | None = None
+        self._thread = threading.Thread(target=self._work, name="qcorr-sha256", daemon=True)
+        self._thread.start()
+
+    def _work(self) -> None:
+        try:
+            self._records = describe_files(self._paths, self._cancel)
+        except BaseException as err:  # handed to the caller's thread by result()
+            self._error = err
+
+    def result(self) -> list[dict[str, object]]:
+        """The records of :func:`describe_files` (waits; re-raises its error here)."""
+        self._thread.join()
+        if self._error is not None:
+            raise self._error
+        if self._records is None or self._cancel.is_set():
+            raise RuntimeError("file hashing was cancelled; no records")
+        return self._records
+
+    def cancel(self) -> None:
+        """Stop hashing (the records are then incomplete and not returned)."""
+        self._cancel.set()
+        self._thread.join()
+
+
+def start_describing_files(paths: Sequence[str | os.PathLike[str]]) -> FileDescriptions:
+    """Start :func:`describe_files` in a background thread; see :class:`FileDescriptions`."""
+    return FileDescriptions(paths)
 
 
 # --------------------------------------------------------------------------- masses
@@ -747,8 +812,9 @@ def stream_velocities(
     count_stop: int | None = None,
     statistics: FrameStatistics | None = None,
     progress_mode: str = "never",
-) -> Iterator[NDArray[np.float64]]:
-    """Yield centre-of-mass-free velocities (Å/ps, float64, (n_channels, 3)) one sample at a time.
+    dtype: type = np.float64,
+) -> Iterator[NDArray[np.floating]]:
+    """Yield centre-of-mass-free velocities (Å/ps, (n_channels, 3)) one sample at a time.
 
     Sample j is window frame j for stored velocities; for ``source="positions"`` it is
     the forward difference (x_{j+1} − x_j)/Δt of window frames j and j+1, each
@@ -769,10 +835,16 @@ def stream_velocities(
     statistics : FrameStatistics, optional
         Updated in place.
     progress_mode : {"auto", "always", "never"}
+    dtype : {numpy.float64, numpy.float32}
+        Precision of the stored velocities yielded.  ``float32`` hands on the reader's
+        single-precision values (MDAnalysis reads every format in float32) with the
+        centre-of-mass velocity computed in float64 and subtracted once, which avoids a
+        double-precision copy per frame; ``float64`` (default) converts first.  Velocities
+        from positions are always differenced and yielded in float64.
 
     Yields
     ------
-    ndarray, shape (n_channels, 3), Å/ps
+    ndarray, shape (n_channels, 3), Å/ps (a new array each sample)
 
     Raises
     ------
@@ -789,6 +861,9 @@ def stream_velocities(
 
     if source not in ("stored", "positions"):
         raise ConfigError(f"--velocities-from {source!r}: choose stored or positions")
+    if np.dtype(dtype) not in (np.float32, np.float64):
+        raise ConfigError(f"velocity precision {dtype!r}: choose numpy.float32 or numpy.float64")
+    single = np.dtype(dtype) == np.float32 and source == "stored"
     universe = opened.universe
     idx = channels.indices
     masses = channels.masses
@@ -824,6 +899,17 @@ def stream_velocities(
                     f"{opened.where(frame_no)} has no velocities; pass "
                     "--velocities-from positions to derive them from positions by finite differences"
                 ) from None
+            if single:
+                selected = raw if all_atoms else raw[idx]
+                com = masses @ selected * (factor_v / total_mass)  # float64
+                if not np.isfinite(com).all():  # sum_j m_j v_j is finite iff every v_j is
+                    _check_finite(selected, universe, idx, frame_no, opened, "velocity")
+                v = np.multiply(selected, np.float32(factor_v)) if factor_v != 1.0 else selected
+                v = np.subtract(v, com.astype(np.float32), dtype=np.float32)
+                _count_frame(statistics, count_from, count_stop, sample, total_mass, com,
+                             ts.dimensions, volume_cache)
+                yield v
+                continue
             v = np.array(raw if all_atoms else raw[idx], dtype=np.float64)
             if factor_v != 1.0:
                 v *= factor_v
@@ -852,15 +938,29 @@ def stream_velocities(
             previous_box = ts.dimensions
         com = masses @ v / total_mass
         v -= com
-        if statistics is not None and count_from <= sample < count_stop:
-            statistics.frames += 1
-            statistics.com_kinetic_sum += total_mass * float(com @ com)
-            dims = box if source == "positions" else ts.dimensions
-            if dims is not None and np.all(np.asarray(dims[:3]) > 0):
-                if volume_cache[0] is None or not np.array_equal(volume_cache[0], dims):
-                    volume_cache[:] = [np.array(dims), _box_volume(dims)]
-                statistics.box_volume_sum_A3 += volume_cache[1]
+        _count_frame(statistics, count_from, count_stop, sample, total_mass, com,
+                     box if source == "positions" else ts.dimensions, volume_cache)
         yield v
+
+
+def _count_frame(statistics, count_from, count_stop, sample, total_mass, com, dims,
+                 volume_cache) -> None:
+    """Add one sample's box volume and M |V_com|^2 to *statistics* (if counted).
+
+    *volume_cache* is ``[key, volume]``: the box volume is recomputed only when the
+    box's bytes change (constant-volume runs compute it once).
+    """
+    if statistics is None or not count_from <= sample < count_stop:
+        return
+    statistics.frames += 1
+    statistics.com_kinetic_sum += total_mass * float(com @ com)
+    if dims is None:
+        return
+    key = dims.tobytes()
+    if volume_cache[0] != key:
+        box = np.asarray(dims)
+        volume_cache[:] = [key, _box_volume(box) if np.all(box[:3] > 0) else 0.0]
+    statistics.box_volume_sum_A3 += volume_cache[1]
 
 
 def _guarded(frames, opened: OpenedTrajectory, window: FrameWindow, first_sample: int):

@@ -259,3 +259,47 @@ def test_blocks_with_finite_differences(oscillator_files, tmp_path, run_qcorr):
     a, b = read_spectrum(single), read_spectrum(joined)
     xr.testing.assert_allclose(a["vdos_segments"], b["vdos_segments"], rtol=1e-12)
     assert a.attrs["frames_used"] == b.attrs["frames_used"] and a.attrs["statistics_frames"] == b.attrs["statistics_frames"]
+
+
+def test_help_imports_only_the_command_asked_for():
+    # `qcorr --help` and `qcorr spectrum --help` must not import the numerical stack (xarray,
+    # pandas, MDAnalysis, scipy.optimize); checked in a fresh interpreter through sys.modules
+    import subprocess
+    import sys
+
+    probe = (
+        "import sys\n"
+        "from qcorr.cli import main\n"
+        "for argv in (['--help'], ['spectrum', '--help']):\n"
+        "    try:\n"
+        "        main(argv)\n"
+        "    except SystemExit:\n"
+        "        pass\n"
+        "heavy = [m for m in ('xarray', 'pandas', 'MDAnalysis', 'scipy.optimize', 'qcorr.twophase',\n"
+        "                     'qcorr.harmonic') if m in sys.modules]\n"
+        "print('HEAVY', heavy)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)
+    assert "HEAVY []" in done.stdout, done.stdout
+    # every command is listed with its own help line, and spectrum with its options
+    for name in ("spectrum", "combine", "properties", "liquid", "merge", "plot"):
+        assert name in done.stdout
+    assert "--segment-ps PS" in done.stdout
+
+
+def test_command_summaries_equal_the_modules():
+    # the help lines read from the sources without importing them equal the modules' own
+    import importlib
+
+    from qcorr.cli import COMMAND_MODULES, _CommandSummary, build_parser
+
+    for name in COMMAND_MODULES:
+        module = importlib.import_module(f"qcorr.cli.{name}_command")
+        summary = _CommandSummary(name)
+        assert (summary.NAME, summary.HELP) == (module.NAME, module.HELP)
+        assert summary.DESCRIPTION == getattr(module, "DESCRIPTION", module.HELP)
+    # a parser built for one command parses that command's options like the full parser
+    argv = ["spectrum", "--topology", "t.gro", "--trajectory", "a.trr", "--temperature", "300",
+            "--output", "o.nc", "--segment-ps", "2"]
+    lazy, full = build_parser(argv).parse_args(argv), build_parser().parse_args(argv)
+    assert vars(lazy) == vars(full)

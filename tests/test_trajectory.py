@@ -186,3 +186,63 @@ def test_time_stamps_that_do_not_increase(tmp_path):
     opened = trj.open_trajectory(synthetic.write_gro(flat, tmp_path / "d.gro"), [synthetic.write_trr(flat, tmp_path / "d.trr")])
     with pytest.raises(SamplingError, match=r"'.*d\.trr' do not increase.*--reader-option dt=PS"):
         trj.frame_window(opened)
+
+
+def test_single_precision_stream_equals_double_to_float32_rounding(tmp_path):
+    # float32 route: the reader's values minus a float64 centre-of-mass velocity, rounded once
+    # to float32 (unit roundoff 2^-24, IEEE 754); oracle: the float64 route on the same file
+    scn = synthetic.diatomic_oscillators([5e12], n_frames=20, timestep_ps=0.002, temperature_K=300)
+    drift = dataclasses.replace(scn, velocities=scn.velocities + np.array([1.0, -2.0, 0.5]))
+    top = synthetic.write_gro(drift, tmp_path / "d.gro")
+    trr = synthetic.write_trr(drift, tmp_path / "d.trr")
+    opened = trj.open_trajectory(top, [trr])
+    trj.apply_masses_by_type(opened.universe, {"O": 16.0})
+    channels = trj.massive_atoms(opened.universe)
+    window = trj.frame_window(opened)
+    runs = {}
+    for dtype in (np.float64, np.float32):
+        stats = trj.FrameStatistics()
+        frames = list(trj.stream_velocities(opened, channels, window, 0, 20, statistics=stats, dtype=dtype))
+        assert all(f.dtype == dtype for f in frames)
+        assert len({id(f) for f in frames}) == 20  # a new array per sample, never the reader's buffer
+        runs[dtype] = (np.array(frames), stats)
+    (v64, s64), (v32, s32) = runs[np.float64], runs[np.float32]
+    scale = np.abs(v64).max() + 2.5  # largest value before the drift was removed
+    np.testing.assert_allclose(v32, v64, rtol=0, atol=2 * 2.0**-24 * scale)
+    assert (s32.frames, s32.box_volume_sum_A3) == (s64.frames, s64.box_volume_sum_A3)
+    assert s32.com_kinetic_sum == pytest.approx(s64.com_kinetic_sum, rel=1e-12)  # both float64 sums
+    with pytest.raises(ConfigError, match="precision"):
+        next(trj.stream_velocities(opened, channels, window, 0, 20, dtype=np.int32))
+
+
+def test_single_precision_stream_names_a_non_finite_atom(tmp_path):
+    scn = synthetic.diatomic_oscillators([5e12], n_frames=12, timestep_ps=0.002, temperature_K=300)
+    bad = scn.velocities.copy()
+    bad[7, 1, 2] = np.nan
+    scn = dataclasses.replace(scn, velocities=bad)
+    top = synthetic.write_gro(scn, tmp_path / "n.gro")
+    trr = synthetic.write_trr(scn, tmp_path / "n.trr")
+    opened = trj.open_trajectory(top, [trr])
+    trj.apply_masses_by_type(opened.universe, {"O": 16.0})
+    channels = trj.massive_atoms(opened.universe)
+    window = trj.frame_window(opened)
+    with pytest.raises(TrajectoryError, match=r"frame 7.*non-finite velocity.*atom index 1"):
+        for _ in trj.stream_velocities(opened, channels, window, 0, 12, dtype=np.float32):
+            pass
+
+
+def test_background_hashing_equals_sha256_and_reports_unreadable_files(tmp_path):
+    import hashlib
+
+    # FIPS 180-4 SHA-256 via hashlib over the whole content (several 1 MiB blocks)
+    content = np.random.default_rng(3).bytes(3 * (1 << 20) + 12345)
+    p = tmp_path / "big.bin"
+    p.write_bytes(content)
+    (rec,) = trj.start_describing_files([p]).result()
+    assert rec == {"name": "big.bin", "size_bytes": len(content), "sha256": hashlib.sha256(content).hexdigest()}
+    with pytest.raises(TrajectoryError, match="missing.trr"):
+        trj.start_describing_files([p, tmp_path / "missing.trr"]).result()
+    running = trj.start_describing_files([p])
+    running.cancel()
+    with pytest.raises(RuntimeError, match="cancelled"):
+        running.result()

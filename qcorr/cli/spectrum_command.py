@@ -225,8 +225,6 @@ def run(args: argparse.Namespace) -> int:
     else:
         count_stop = stop_sample
 
-    # files are hashed before the long loop so a missing/unreadable file fails early
-    input_files = trj.describe_files(opened.files)
     accumulator = est.SegmentAccumulator(
         settings, plan.weights, plan.group_members, plan.n_components, args.threads,
         first_segment=first_seg, stop_segment=stop_seg,
@@ -236,17 +234,28 @@ def run(args: argparse.Namespace) -> int:
     fd_step = window.timestep_ps if positions else None
     molecular = pass_for_spectrum_command(args, opened, channels, groups, settings, window,
                                           first_seg, stop_seg, block_count)
+    # stored velocities stay in the reader's single precision through the atomic estimator
+    # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
+    # and finite differences work in float64
+    precision = np.float32 if molecular is None else np.float64
     stats = trj.FrameStatistics()
-    for velocities in trj.stream_velocities(
-        opened, channels, window, first_sample, stop_sample,
-        source=args.velocities_from, count_from=first_sample, count_stop=count_stop,
-        statistics=stats, progress_mode=args.progress,
-    ):
-        accumulator.add_frame(velocities)
-        if molecular is not None:
-            molecular.add_frame(velocities, opened.universe.trajectory.ts,
-                                finite_difference_timestep_ps=fd_step)
-    powers = accumulator.result()
+    # the inputs' SHA-256 is computed in a background thread while the frames are read
+    hashing = trj.start_describing_files(opened.files)
+    try:
+        for velocities in trj.stream_velocities(
+            opened, channels, window, first_sample, stop_sample,
+            source=args.velocities_from, count_from=first_sample, count_stop=count_stop,
+            statistics=stats, progress_mode=args.progress, dtype=precision,
+        ):
+            accumulator.add_frame(velocities)
+            if molecular is not None:
+                molecular.add_frame(velocities, opened.universe.trajectory.ts,
+                                    finite_difference_timestep_ps=fd_step)
+        powers = accumulator.result()
+        input_files = hashing.result()
+    except BaseException:
+        hashing.cancel()
+        raise
 
     raw = raw_spectra(powers.power, powers.frequency_Hz, args.temperature,
                       finite_difference_timestep_ps=window.timestep_ps if positions else None)
