@@ -246,3 +246,14 @@ def test_background_hashing_equals_sha256_and_reports_unreadable_files(tmp_path)
     running.cancel()
     with pytest.raises(RuntimeError, match="cancelled"):
         running.result()
+
+
+@pytest.mark.parametrize("n_atoms", [1, 63, 64, 65, 2001])
+def test_blockwise_vector_subtraction_equals_broadcasting(n_atoms):
+    # the blocked subtraction used on float32 frames must give numpy's broadcast result exactly
+    rng = np.random.default_rng(n_atoms)
+    values = rng.standard_normal((n_atoms, 3)).astype(np.float32)
+    vector = rng.standard_normal(3).astype(np.float32)
+    got = trj._minus_vector(values, vector)
+    assert got.dtype == np.float32 and not np.shares_memory(got, values)
+    np.testing.assert_array_equal(got, values - vector)
