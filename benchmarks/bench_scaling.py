@@ -772,7 +772,9 @@ def main(argv: list[str] | None = None) -> int:
         (
             "The two block jobs are started at the same time as two processes; every run was"
             f" repeated {max(2, repeats)} times, alternating, and the fastest is shown. Combined"
-            f" result vs one job: {agreement}."
+            f" result vs one job: {agreement}. Two processes get two cores only when nothing"
+            " else runs: with outside load (load average above) the wall-time speed-up measures"
+            " the load, and the CPU-time line shows what two idle cores would give."
         ),
         "",
         "| run | wall s | speed-up vs one job | peak MiB per process |",
