@@ -257,3 +257,24 @@ def test_blockwise_vector_subtraction_equals_broadcasting(n_atoms):
     got = trj._minus_vector(values, vector)
     assert got.dtype == np.float32 and not np.shares_memory(got, values)
     np.testing.assert_array_equal(got, values - vector)
+
+
+def test_consecutive_frames_read_on_and_report_an_early_end():
+    class Reader:  # minimal stand-in for an MDAnalysis reader: seek by index, then next()
+        def __init__(self, n):
+            self.n, self.at = n, None
+
+        def __getitem__(self, i):
+            self.at = i
+            return i
+
+        def next(self):
+            if self.at + 1 >= self.n:
+                raise StopIteration
+            self.at += 1
+            return self.at
+
+    assert list(trj._consecutive(Reader(10), 3, 7)) == [3, 4, 5, 6]
+    assert list(trj._consecutive(Reader(10), 5, 5)) == []
+    with pytest.raises(EOFError, match="ends before"):
+        list(trj._consecutive(Reader(6), 3, 9))
