@@ -6,6 +6,11 @@ Each subcommand lives in its own module ``qcorr/cli/<name>_command.py`` that def
 * ``add_arguments(parser)`` (every option documents its unit), and
 * ``run(args) -> int`` (exit status).
 
+Only the subcommand named on the command line is imported (its module imports its
+heavy libraries inside ``run``, or at the top); the other subcommands are listed from
+the ``NAME``/``HELP``/``DESCRIPTION`` strings of their sources, so keep those plain
+string literals.
+
 Errors of the :class:`qcorr.errors.QcorrError` family are printed as one line,
 ``qcorr: error: ...``, and give a non-zero exit status.
 """
