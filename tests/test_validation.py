@@ -54,7 +54,6 @@ TESTED = [
     ("argon_liquid_86K", "free-energy correction ΔA"),
     ("water_flexible_298K", "heat-capacity correction ΔCv"),
     ("water_flexible_298K", "zero-point energy of the intramolecular band (ν̃ ≥ 1150 cm⁻¹)"),
-    ("water_flexible_298K", "degrees of freedom in the intramolecular band"),
     ("water_flexible_298K", "zero-point energy, whole spectrum (qcorr properties)"),
 ]
 
