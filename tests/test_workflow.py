@@ -363,7 +363,37 @@ BAD_SHEETS = {
                        "unknown column"),
     "liquid in frame blocks": ([copper_row(liquid="true", blocks="2")], "row 1", "'blocks'",
                                "cannot be split into frame blocks"),
+    "unknown 2PT choice": ([copper_row(hard_sphere_entropy="guess")], "row 1",
+                           "'hard_sphere_entropy'", "guess"),
 }
+
+
+def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):
+    """The sheet's 2PT columns (issue 6 item 4) become 'qcorr liquid' options; defaults are
+    the published forms (Lin, Blanco, Goddard 2003)."""
+    sheet = demo_sheet()
+    water = sheet[sheet["liquid"].astype(str).str.lower() == "true"].iloc[0].to_dict()
+    chosen = dict(water, system="water_choices", hard_sphere_entropy="constant-volume",
+                  rotational_fluidicity="same-as-translation", diffusion_from="msd")
+    rows = [{k: ("" if pd.isna(v) else v) for k, v in row.items()} for row in (water, chosen)]
+    name = sheet_with(demo_copy, rows, "liquid_choices.tsv")
+    try:
+        dry = snakemake(["-n", "-p", "--cores", "1", "--config", f"systems={name}"],
+                        demo_copy, timeout=300)
+    finally:
+        (demo_copy / name).unlink()
+    assert dry.returncode == 0, explain(dry)
+    commands = [line for line in (dry.stdout + dry.stderr).splitlines()
+                if "qcorr liquid " in line]
+    assert len(commands) == 2, explain(dry)
+    default = next(c for c in commands if f"--system {water['system']} " in c)
+    custom = next(c for c in commands if "--system water_choices " in c)
+    for text in ("--hard-sphere-entropy published", "--rotational-fluidicity from-rotation",
+                 "--diffusion-from spectrum"):
+        assert text in default
+    for text in ("--hard-sphere-entropy constant-volume",
+                 "--rotational-fluidicity same-as-translation", "--diffusion-from msd"):
+        assert text in custom
 
 
 @pytest.mark.slow

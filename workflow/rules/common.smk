@@ -427,6 +427,12 @@ def get_liquid_options(wildcards):
         wildcards.system,
         "--symmetry-number",
         str(int(row["symmetry_number"])),
+        "--hard-sphere-entropy",
+        str(row["hard_sphere_entropy"]),
+        "--rotational-fluidicity",
+        str(row["rotational_fluidicity"]),
+        "--diffusion-from",
+        str(row["diffusion_from"]),
     ]
 
 
