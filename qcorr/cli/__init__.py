@@ -141,11 +141,30 @@ def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
             module.NAME,
             help=module.HELP,
             description=getattr(module, "DESCRIPTION", module.HELP),
-            formatter_class=argparse.ArgumentDefaultsHelpFormatter,
+            formatter_class=_DefaultsHelpFormatter,
         )
         module.add_arguments(p)
         p.set_defaults(_run=module.run)
     return parser
+
+
+class _DefaultsHelpFormatter(argparse.HelpFormatter):
+    """Append "(default: X)" to an option's help unless the help already states its default
+    or there is no meaningful default (None, False, empty list)."""
+
+    def _get_help_string(self, action: argparse.Action) -> str:
+        text = action.help or ""
+        default = action.default
+        if (
+            "default" in text
+            or default is argparse.SUPPRESS
+            or default is None
+            or default is False
+            or default == []
+            or action.option_strings == []
+        ):
+            return text
+        return f"{text} (default: %(default)s)"
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
