@@ -527,3 +527,31 @@ def test_vibration_spectrum_choice(tmp_path, run_qcorr):
         side = json.loads(out.with_suffix(".json").read_text())
         assert side["options"]["vibration_spectrum"] == choice
     assert results["difference"] < results["residual"]
+
+
+def test_pure_normalisation_scatter_gives_no_standard_error(tmp_path, run_qcorr):
+    """Segments that differ from the mean spectrum only by an overall factor carry no
+    information beyond the normalisation, which the averaged spectrum removes (its integral
+    is set to the degrees of freedom); the 2PT standard errors must then vanish.  Same
+    ratio-estimator treatment as the harmonic table (delta method; e.g. Kendall & Stuart,
+    The Advanced Theory of Statistics, Vol. 1, 'variance of a ratio')."""
+    n, m, t = 500, 39.948, 120.0
+    volume_A3 = n * 39.948 / sc.N_A / 1.3e6 * 1e30  # liquid-like density 1.3 g/cm^3
+    s0 = _s0_for(2.0e-9, n, m, t)
+    x = np.linspace(0, 400.0, 4001)
+    s = _lorentzian(x, s0, 3 * n) + 3 * n * np.exp(-((x - 60.0) / 20.0) ** 2) / (20.0 * math.sqrt(math.pi))
+    s *= 3 * n / np.trapezoid(s, x)
+    scales = np.array([0.9, 1.0, 1.1])  # mean exactly 1: the file's vdos is their mean
+    g = spectra.GroupSpec(s, 3.0 * n, n, n, m * n, selection="name Ar",
+                          segment_spectra=s[None, :] * scales[:, None])
+    ds = spectra.spectrum_dataset(x, {"total": g}, temperature_K=t, n_segments=3,
+                                  attrs_override={"mean_box_volume_A3": volume_A3})
+    path = spectra.write_spectrum_file(ds, tmp_path / "scaled.nc")
+    out = tmp_path / "scaled.csv"
+    code, _, err = run_qcorr("liquid", path, "--output", out, "--quiet")
+    assert code == 0, err
+    frame = pd.read_csv(out)
+    for prop in ("entropy", "heat_capacity"):
+        row = _row(frame, "total", prop)
+        assert row["quantum"] > 0
+        assert abs(row["quantum_se"]) <= 1e-9 * abs(row["quantum"]), (prop, row["quantum_se"])

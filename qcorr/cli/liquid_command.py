@@ -7,6 +7,7 @@ in :mod:`qcorr.twophase`, the table layout in :mod:`qcorr.table`.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import math
 import sys
 import warnings
@@ -224,6 +225,25 @@ def _group_input(ds, g: int, name: str, path, vibration: str = "residual") -> Gr
     )
 
 
+def _segments_rescaled(gin: GroupInput, wavenumber: np.ndarray) -> GroupInput:
+    """Rescale each segment's component spectra by one common factor so that, summed over
+    the components, the segment integrates to the same total as the averaged spectrum.
+
+    The averaged spectrum is normalised to the degrees of freedom as a whole (a ratio of
+    power to total power); evaluating 2PT on segments scaled the same way makes their
+    scatter include the fluctuation of that normalisation (delta-method variance of a
+    ratio estimator), as :func:`qcorr.harmonic.normalised_segments` does for the harmonic
+    table.  The component split inside a segment is left as measured.
+    """
+    names = list(gin.part_segments)
+    target = sum(float(np.trapezoid(gin.parts[c], wavenumber)) for c in names)
+    totals = sum(np.trapezoid(np.asarray(gin.part_segments[c], dtype=float), wavenumber, axis=-1)
+                 for c in names)
+    factor = np.where(totals > 0, target / np.where(totals > 0, totals, 1.0), 1.0)
+    scaled = {c: np.asarray(gin.part_segments[c], dtype=float) * factor[:, None] for c in names}
+    return dataclasses.replace(gin, part_segments=scaled)
+
+
 # ------------------------------------------------------------------ rows
 _PROPS = {
     "entropy": ("J/(mol K)", "entropy", "entropy_classical", None),
@@ -411,6 +431,7 @@ def run(args: argparse.Namespace) -> int:
             d_correction = twophase.finite_size_diffusion_correction(
                 temperature, args.viscosity, volume ** (1.0 / 3.0))
         n_seg = ds.sizes["segment"]
+        gin = _segments_rescaled(gin, wavenumber)
         if args.diffusion_from == "msd":
             s0 = s0_of(gin.msd_diffusion_m2_per_s + d_correction)
             s0_segments = [s0] * n_seg
