@@ -378,7 +378,7 @@ def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):
     rows = [{k: ("" if pd.isna(v) else v) for k, v in row.items()} for row in (water, chosen)]
     name = sheet_with(demo_copy, rows, "liquid_choices.tsv")
     try:
-        dry = snakemake(["-n", "-p", "--cores", "1", "--config", f"systems={name}"],
+        dry = snakemake(["-n", "-p", "--forceall", "--cores", "1", "--config", f"systems={name}"],
                         demo_copy, timeout=300)
     finally:
         (demo_copy / name).unlink()
