@@ -191,3 +191,47 @@ def test_bad_options_are_refused_with_the_option_named(tmp_path, capsys):
     not_a_directory.write_text("x")
     assert engines.main(["--output-dir", str(not_a_directory)]) == 2
     assert "--output-dir" in capsys.readouterr().err
+
+
+def test_folding_the_tabulated_lennard_jones_term_keeps_the_potential():
+    """The validation water moves OpenMM's tabulated CHARMM Lennard-Jones term into the
+    standard nonbonded force for speed; energy and forces must stay those of the force field
+    (CHARMM TIP3P: O eps 0.1521 kcal/mol, Rmin/2 1.7682 A; H eps 0.046 kcal/mol, Rmin/2
+    0.2245 A; MacKerell et al., J. Phys. Chem. B 102, 3586 (1998), from memory)."""
+    import numpy as np
+    import openmm as mm
+    from openmm import app, unit
+
+    forcefield = app.ForceField("charmm36/water.xml")
+    modeller = app.Modeller(app.Topology(), [])
+    modeller.addSolvent(forcefield, model="tip3p", boxSize=mm.Vec3(1.5, 1.5, 1.5) * unit.nanometer)
+
+    def energy_and_forces(fold: bool):
+        system = forcefield.createSystem(modeller.topology, nonbondedMethod=app.PME,
+                                         nonbondedCutoff=0.6 * unit.nanometer,
+                                         constraints=None, rigidWater=False)
+        if fold:
+            engines.fold_tabulated_lennard_jones(system)
+            assert not any(isinstance(f, mm.CustomNonbondedForce) for f in system.getForces())
+        context = mm.Context(system, mm.VerletIntegrator(0.001),
+                             mm.Platform.getPlatformByName("Reference"))
+        context.setPositions(modeller.positions)
+        state = context.getState(getEnergy=True, getForces=True)
+        energy = state.getPotentialEnergy().value_in_unit(unit.kilojoule_per_mole)
+        forces = state.getForces(asNumpy=True).value_in_unit(unit.kilojoule_per_mole / unit.nanometer)
+        nb = next(f for f in system.getForces() if isinstance(f, mm.NonbondedForce))
+        # read the parameters while the System that owns the force is alive
+        oxygen, hydrogen = (nb.getParticleParameters(i)[1:] for i in (0, 1))
+        return energy, np.asarray(forces), oxygen, hydrogen
+
+    e_table, f_table, _, _ = energy_and_forces(False)
+    e_fold, f_fold, (sigma_o, eps_o), (sigma_h, eps_h) = energy_and_forces(True)
+    kcal = 4.184  # kJ per thermochemical kcal (NIST SP 811)
+    rmin_half = 2 ** (1 / 6) / 2  # Rmin/2 = 2^(1/6) sigma / 2
+    assert eps_o.value_in_unit(unit.kilojoule_per_mole) == pytest.approx(0.1521 * kcal, rel=1e-4)
+    assert eps_h.value_in_unit(unit.kilojoule_per_mole) == pytest.approx(0.046 * kcal, rel=1e-4)
+    assert sigma_o.value_in_unit(unit.angstrom) * rmin_half == pytest.approx(1.7682, rel=1e-4)
+    assert sigma_h.value_in_unit(unit.angstrom) * rmin_half == pytest.approx(0.2245, rel=1e-4)
+    scale = np.abs(f_table).max()
+    assert e_fold == pytest.approx(e_table, abs=1e-6 * abs(e_table) + 1e-3)
+    assert np.abs(f_fold - f_table).max() <= 1e-6 * scale
