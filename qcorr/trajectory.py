@@ -47,11 +47,11 @@ import numpy as np
 from numpy.typing import NDArray
 
 from qcorr.constants import femtosecond_s, picosecond_s
-from qcorr.errors import ConfigError, QcorrWarning, SamplingError, TrajectoryError
+from qcorr.errors import ConfigError, SamplingError, TrajectoryError
 
 #: atom names/types (case-insensitive, whole name) that mark a massless virtual site:
 #: TIP4P-style "M"/"MW"/"EPW", extra points "EP1", lone pairs "LP1", generic "VS"/"VSITE", dummies "DUM".
-VIRTUAL_SITE_PATTERN = re.compile(r"^(M|MW\d*|EPW\d*|EP\d*|LP\d*|VS\d*|VSITE\d*|DUM\w*)$", re.I)
+VIRTUAL_SITE_PATTERN = re.compile(r"^(M|MW\d*|EPW\d*|EP\d*|LP\d*|VS\d*|VSITE\d*|DUM\w*)$", re.IGNORECASE)
 
 #: file suffixes read as LAMMPS dumps when no format is given
 LAMMPS_DUMP_SUFFIXES = (".lammpstrj", ".lammpsdump", ".dump")

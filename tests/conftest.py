@@ -17,7 +17,7 @@ import pytest
 
 sys.path.insert(0, str(Path(__file__).parent))
 
-import synthetic  # noqa: E402
+import synthetic
 
 #: scenario constants shared by the command, format and bad-input tests
 OSC_TIMESTEP_PS = 0.002

@@ -9,7 +9,6 @@ import dataclasses
 
 import numpy as np
 import pytest
-
 import synthetic
 from conftest import OSC_MASS_U, OSC_SEGMENT_PS
 

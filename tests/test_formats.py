@@ -19,11 +19,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-import xarray as xr
-from scipy import constants as sc
-
 import synthetic
+import xarray as xr
 from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K, OSC_TIMESTEP_PS
+from scipy import constants as sc
 
 
 def _write(fmt, scn, d):

@@ -20,7 +20,7 @@ import os
 import stat
 import subprocess
 import sys
-import xml.etree.ElementTree as ElementTree
+from xml.etree import ElementTree
 
 import numpy as np
 import pytest

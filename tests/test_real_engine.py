@@ -30,9 +30,9 @@ import numpy as np
 import pytest
 
 openmm = pytest.importorskip("openmm")
-from openmm import app, unit  # noqa: E402
+from openmm import app, unit
 
-from qcorr.spectrum_file import raw_segments_of, read_spectrum  # noqa: E402
+from qcorr.spectrum_file import raw_segments_of, read_spectrum
 
 MASS_U = 39.948  # argon, standard atomic weight (IUPAC)
 TEMPERATURE_K = 40.0

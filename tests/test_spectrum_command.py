@@ -15,11 +15,11 @@ import json
 
 import numpy as np
 import pytest
+import synthetic
 import xarray as xr
+from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
 from scipy import constants as sc
 
-import synthetic
-from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
 from qcorr.spectrum_file import read_spectrum
 
 

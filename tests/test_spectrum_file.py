@@ -122,10 +122,10 @@ def test_incomplete_dataset_never_written(tmp_path):
 
 
 # --------------------------------------------------------------------------- assembling and diagnostics
-from types import SimpleNamespace  # noqa: E402
+from types import SimpleNamespace
 
-from qcorr import diagnostics  # noqa: E402
-from qcorr.spectrum_file import assemble_spectrum, combine_blocks, group_table, raw_segments_of  # noqa: E402
+from qcorr import diagnostics
+from qcorr.spectrum_file import assemble_spectrum, combine_blocks, group_table, raw_segments_of
 
 
 def _assembled(raw_scale=1.0, n_segments=6, shape="line", com_mv2=0.0, temperature=300.0, first_segment=0,
@@ -174,7 +174,7 @@ def test_assembled_normalisation():
 
 
 def test_diagnostics_fire_on_their_thresholds():
-    status = lambda ds: {d.check: d.status for d in diagnostics.run_diagnostics(ds)}  # noqa: E731
+    status = lambda ds: {d.check: d.status for d in diagnostics.run_diagnostics(ds)}
     assert status(_assembled()) == {"aliasing": "ok", "resolution": "ok", "temperature": "ok",
                                     "centre_of_mass_drift": "ok", "sum_rule": "ok"}
     assert status(_assembled(shape="flat"))["aliasing"] == "warning"  # 5 % of the weight near Nyquist

@@ -7,9 +7,9 @@ import dataclasses
 import MDAnalysis as mda
 import numpy as np
 import pytest
+import synthetic
 from scipy import constants as sc
 
-import synthetic
 from qcorr import trajectory as trj
 from qcorr.errors import ConfigError, SamplingError, TrajectoryError
 

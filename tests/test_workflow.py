@@ -91,7 +91,7 @@ def readme_commands() -> list[str]:
     """The two commands of the README's 'Start' section (bash code blocks, in order)."""
     text = (REPO / "README.md").read_text(encoding="utf-8")
     start = text.split("## Start", 1)[1].split("\n## ", 1)[0]
-    return [block.strip() for block in re.findall(r"```bash\n(.*?)```", start, flags=re.S)]
+    return [block.strip() for block in re.findall(r"```bash\n(.*?)```", start, flags=re.DOTALL)]
 
 
 def demo_sheet() -> pd.DataFrame:
@@ -170,7 +170,7 @@ def test_readme_has_exactly_the_two_commands_and_ci_runs_the_test_one():
     assert re.search(r"python3? -m pytest", ci)
     pyproject = (REPO / "pyproject.toml").read_text(encoding="utf-8")
     for extra in ("workflow", "test"):
-        line = re.search(rf"^{extra} = \[(.*?)\]", pyproject, flags=re.M | re.S)
+        line = re.search(rf"^{extra} = \[(.*?)\]", pyproject, flags=re.MULTILINE | re.DOTALL)
         assert line and "snakemake>=9.14.8" in line.group(1), extra
 
 

@@ -175,11 +175,10 @@ def run(args: argparse.Namespace) -> int:
     """Run ``qcorr spectrum``; returns the exit status."""
     import MDAnalysis
 
-    from qcorr import diagnostics as diag
     from qcorr import spectrum as est
     from qcorr import trajectory as trj
     from qcorr.constants import speed_of_light_cm_per_s
-    from qcorr.spectrum_file import assemble_spectrum, group_table, raw_spectra, write_spectrum
+    from qcorr.spectrum_file import assemble_spectrum, group_table, raw_spectra
 
     _check_arguments(args)
     block_index, block_count = parse_block(args.block)
