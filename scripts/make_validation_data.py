@@ -75,6 +75,7 @@ import dataclasses
 import hashlib
 import json
 import math
+import multiprocessing
 import os
 import platform
 import sys
@@ -918,7 +919,17 @@ def make_systems(
         else:
             todo.append(spec)
     if jobs > 1 and len(todo) > 1:
-        with concurrent.futures.ProcessPoolExecutor(max_workers=jobs) as pool:
+        # Fresh interpreters ("spawn"), not fork: a process that already ran OpenMM (a test
+        # session) holds thread pools whose locks a forked child inherits but cannot release
+        # (a fork of a threaded process may only call async-signal-safe functions, POSIX
+        # fork(2)); a forked OpenMM water run was seen to hang.  The children find this module
+        # through PYTHONPATH.
+        here = str(Path(__file__).resolve().parent)
+        os.environ["PYTHONPATH"] = os.pathsep.join(
+            p for p in (here, os.environ.get("PYTHONPATH", "")) if p
+        )
+        context = multiprocessing.get_context("spawn")
+        with concurrent.futures.ProcessPoolExecutor(max_workers=jobs, mp_context=context) as pool:
             futures = {pool.submit(make_system, s, output_dir / s.name, threads): s for s in todo}
             for future in concurrent.futures.as_completed(futures):
                 spec = futures[future]
