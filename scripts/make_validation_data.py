@@ -197,6 +197,9 @@ VALIDATION_SYSTEMS: dict[str, Spec] = {
 def spec_settings(spec: Spec) -> dict[str, Any]:
     """The settings that define a trajectory (what the cache digest is made from)."""
     settings = dataclasses.asdict(spec)
+    # recorded only when used, so settings written before the option existed stay current
+    if settings.get("fold_tabulated_lennard_jones") is False:
+        del settings["fold_tabulated_lennard_jones"]
     settings["temperature_K"] = spec.temperature_K
     settings["recipe_version"] = RECIPE_VERSION
     return settings
