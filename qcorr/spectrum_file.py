@@ -438,6 +438,60 @@ def _same(values: list, what: str, names: list[str]) -> None:
             )
 
 
+def combine_file_records(records: list, names: list[str]) -> list[dict]:
+    """Join the input-file records of N block files into one record per file.
+
+    Each block job hashes its own share of every input file (``sha256_parts``, see
+    :func:`qcorr.trajectory.describe_files`); the joined record lists the parts of all
+    blocks in block order.  The blocks must name the same files with the same sizes and
+    their parts must cover each file from its first to its last byte without gap or
+    overlap.  Records of files hashed whole (``sha256``) must be identical.
+
+    Parameters
+    ----------
+    records : list
+        ``input_files`` of each block, in block order.
+    names : list of str
+        Block file names, for messages.
+
+    Raises
+    ------
+    SpectrumFileError
+        Different files or sizes, or parts that do not cover a file.
+    """
+    first = records[0]
+    for record, name in zip(records[1:], names[1:]):
+        same = isinstance(record, list) and len(record) == len(first) and all(
+            isinstance(a, dict) and a.get("name") == b.get("name") and a.get("size_bytes") == b.get("size_bytes")
+            for a, b in zip(record, first)
+        )
+        if not same:
+            raise SpectrumFileError(
+                f"block '{name}' was computed from other input files (names or sizes) than block "
+                f"'{names[0]}'; combine only the blocks of one 'qcorr spectrum --block I-of-N' set"
+            )
+    joined = []
+    for k, entry in enumerate(first):
+        if "sha256_parts" not in entry:
+            _same([r[k] for r in records], f"input file record of '{entry.get('name')}'", names)
+            joined.append(dict(entry))
+            continue
+        parts = [part for r in records for part in r[k].get("sha256_parts", [])]
+        position = 0
+        for part in parts:
+            if part.get("first_byte") != position:
+                break
+            position = part.get("stop_byte")
+        if position != entry["size_bytes"] or len(parts) != len(records):
+            raise SpectrumFileError(
+                f"the SHA-256 parts of input file '{entry['name']}' in the block files do not cover "
+                f"its {entry['size_bytes']} bytes once in order; the block files come from "
+                "different runs"
+            )
+        joined.append({"name": entry["name"], "size_bytes": entry["size_bytes"], "sha256_parts": parts})
+    return joined
+
+
 def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: str) -> xr.Dataset:
     """Rebuild the single-job spectrum from the frame-block files of one run.
 
@@ -473,7 +527,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
             if var not in ds.variables:
                 raise SpectrumFileError(f"{_describe(name)} lacks '{var}'; it is not a qcorr block file")
     same_attrs = (
-        "input_files", "temperature_K", "timestep_ps", "frame_start", "frame_stop", "frame_step",
+        "temperature_K", "timestep_ps", "frame_start", "frame_stop", "frame_step",
         "segment_frames", "segment_overlap", "taper", "velocity_source",
         "finite_difference_correction", "block_count", "segment_count_window",
     )
@@ -493,6 +547,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
     order = np.argsort(indices)
     datasets = [datasets[i] for i in order]
     names = [names[i] for i in order]
+    input_files = combine_file_records([json_attribute(ds, "input_files") for ds in datasets], names)
     segments = np.concatenate([ds["segment"].values for ds in datasets])
     n_window = int(datasets[0].attrs["segment_count_window"])
     if not np.array_equal(segments, np.arange(n_window)):
@@ -522,6 +577,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         ),
     )
     attrs["diagnostics"] = "[]"
+    attrs["input_files"] = json.dumps(input_files)
     return assemble_spectrum(
         raw_segments=np.concatenate([raw_segments_of(ds) for ds in datasets], axis=1),
         correlation_segments=np.concatenate([ds["vacf_segments_raw"].values for ds in datasets], axis=1),

@@ -305,14 +305,34 @@ def check_complete(opened: OpenedTrajectory) -> None:
             )
 
 
+def byte_range_of_part(size: int, part: int, parts: int) -> tuple[int, int]:
+    """Byte range ``[first, stop)`` of part *part* (0-based) of *parts* equal shares of a file.
+
+    Part ``i`` of ``N`` is ``[floor(i size / N), floor((i + 1) size / N))``; the parts of
+    ``i = 0 .. N-1`` cover the file once, in order.
+    """
+    if parts < 1 or not 0 <= part < parts:
+        raise ConfigError(f"file part {part + 1} of {parts}: the part must be between 1 and {parts}")
+    return (part * size) // parts, ((part + 1) * size) // parts
+
+
 def describe_files(
-    paths: Sequence[str | os.PathLike[str]], _cancel: threading.Event | None = None
+    paths: Sequence[str | os.PathLike[str]], _cancel: threading.Event | None = None,
+    *, part: int = 0, parts: int = 1,
 ) -> list[dict[str, object]]:
     """Name, size (bytes) and SHA-256 (FIPS 180-4, via :mod:`hashlib`) of each input file.
 
     Files are read in 1 MiB blocks into one reused buffer, so large trajectories are not
     held in memory; hashlib releases the GIL while it digests a block, so this can run in
     a background thread beside the frame loop (:func:`start_describing_files`).
+
+    With ``parts > 1`` (a frame-block job, ``--block I-of-N``) only the byte range
+    :func:`byte_range_of_part` of each file is hashed, and the record holds
+    ``"sha256_parts": [{"first_byte", "stop_byte", "sha256"}]`` instead of ``"sha256"``.
+    The N block jobs then hash each file once between them instead of N times;
+    ``qcorr combine`` checks that the parts cover every file and lists them all.  A part
+    can be checked with standard tools, e.g. ``tail -c +$((first+1)) FILE | head -c
+    $((stop-first)) | sha256sum``.
 
     Raises
     ------
@@ -326,21 +346,36 @@ def describe_files(
         path = Path(path)
         digest = hashlib.sha256()
         try:
+            size = path.stat().st_size
+            first, stop = byte_range_of_part(size, part, parts)
+            left = stop - first
             with path.open("rb", buffering=0) as fh:
-                while True:
+                fh.seek(first)
+                while left > 0:
                     if _cancel is not None and _cancel.is_set():
                         return records
-                    n = fh.readinto(buffer)
+                    n = fh.readinto(view[: min(left, len(buffer))])
                     if not n:
                         break
                     digest.update(view[:n])
-            size = path.stat().st_size
+                    left -= n
         except OSError as err:
             raise TrajectoryError(
                 f"cannot read '{path}' to record its SHA-256 ({err.strerror or err}); "
                 "check that the file exists and is readable"
             ) from None
-        records.append({"name": path.name, "size_bytes": size, "sha256": digest.hexdigest()})
+        if left > 0:
+            raise TrajectoryError(
+                f"'{path}' became shorter while its SHA-256 was computed ({size} bytes when "
+                "started); do not change input files while qcorr reads them"
+            )
+        record: dict[str, object] = {"name": path.name, "size_bytes": size}
+        if parts == 1:
+            record["sha256"] = digest.hexdigest()
+        else:
+            record["sha256_parts"] = [{"first_byte": first, "stop_byte": stop,
+                                       "sha256": digest.hexdigest()}]
+        records.append(record)
     return records
 
 
@@ -353,8 +388,9 @@ class FileDescriptions:
     the command fails).
     """
 
-    def __init__(self, paths: Sequence[str | os.PathLike[str]]) -> None:
+    def __init__(self, paths: Sequence[str | os.PathLike[str]], part: int = 0, parts: int = 1) -> None:
         self._paths = list(paths)
+        self._part, self._parts = part, parts
         self._cancel = threading.Event()
         self._records: list[dict[str, object]] | None = None
         self._error: BaseException | None = None
@@ -363,7 +399,7 @@ class FileDescriptions:
 
     def _work(self) -> None:
         try:
-            self._records = describe_files(self._paths, self._cancel)
+            self._records = describe_files(self._paths, self._cancel, part=self._part, parts=self._parts)
         except BaseException as err:  # handed to the caller's thread by result()
             self._error = err
 
@@ -382,9 +418,10 @@ class FileDescriptions:
         self._thread.join()
 
 
-def start_describing_files(paths: Sequence[str | os.PathLike[str]]) -> FileDescriptions:
+def start_describing_files(paths: Sequence[str | os.PathLike[str]], part: int = 0,
+                           parts: int = 1) -> FileDescriptions:
     """Start :func:`describe_files` in a background thread; see :class:`FileDescriptions`."""
-    return FileDescriptions(paths)
+    return FileDescriptions(paths, part, parts)
 
 
 # --------------------------------------------------------------------------- masses

@@ -97,6 +97,18 @@ def test_blocks_combine_to_the_single_job(single_job, oscillator_files, tmp_path
         assert a.attrs[attr] == b.attrs[attr], attr
     assert b.attrs["mean_box_volume_A3"] == pytest.approx(a.attrs["mean_box_volume_A3"], rel=1e-12)
     assert b.attrs["diagnostics"] == a.attrs["diagnostics"]
+    # each block hashed a third of every input; the combined record lists the three parts,
+    # each the SHA-256 (FIPS 180-4, hashlib) of its byte range of the file
+    import hashlib
+
+    for single_rec, joined in zip(json.loads(a.attrs["input_files"]), json.loads(b.attrs["input_files"])):
+        assert joined["name"] == single_rec["name"] and joined["size_bytes"] == single_rec["size_bytes"]
+        content = oscillator_files["trr" if joined["name"].endswith(".trr") else "topology"].read_bytes()
+        assert [(p["first_byte"], p["stop_byte"]) for p in joined["sha256_parts"]] == [
+            (k * len(content) // 3, (k + 1) * len(content) // 3) for k in range(3)]
+        for p in joined["sha256_parts"]:
+            assert p["sha256"] == hashlib.sha256(content[p["first_byte"]:p["stop_byte"]]).hexdigest()
+        assert hashlib.sha256(content).hexdigest() == single_rec["sha256"]
 
     # missing block
     code, _, err = run_qcorr("combine", *blocks[:2], "--output", tmp_path / "x.nc")

@@ -216,3 +216,24 @@ def test_combine_blocks_rebuilds_the_whole():
     assert joined.attrs["block_count"] == 1 and joined.attrs["statistics_frames"] == 60
     with pytest.raises(SpectrumFileError, match="missing \\[1\\]"):
         combine_blocks([blocks[1]], ["b2.nc"], "x")
+
+
+def test_file_records_of_blocks_must_cover_each_file_once():
+    from qcorr.spectrum_file import combine_file_records
+
+    def block(first, stop, size=10, name="run.trr"):
+        return [{"name": name, "size_bytes": size,
+                 "sha256_parts": [{"first_byte": first, "stop_byte": stop, "sha256": f"{first}"}]}]
+
+    names = ["b1.nc", "b2.nc"]
+    joined = combine_file_records([block(0, 5), block(5, 10)], names)
+    assert [p["first_byte"] for p in joined[0]["sha256_parts"]] == [0, 5]
+    with pytest.raises(SpectrumFileError, match="do not cover"):
+        combine_file_records([block(0, 4), block(5, 10)], names)  # gap
+    with pytest.raises(SpectrumFileError, match="do not cover"):
+        combine_file_records([block(0, 5), block(0, 5)], names)  # the same part twice
+    with pytest.raises(SpectrumFileError, match="b2.nc.*other input files"):
+        combine_file_records([block(0, 5), block(5, 11, size=11)], names)  # another file size
+    whole = [{"name": "top.gro", "size_bytes": 3, "sha256": "ab"}]
+    with pytest.raises(SpectrumFileError, match="input file record of 'top.gro'"):
+        combine_file_records([whole, [{"name": "top.gro", "size_bytes": 3, "sha256": "cd"}]], names)

@@ -248,6 +248,28 @@ def test_background_hashing_equals_sha256_and_reports_unreadable_files(tmp_path)
         running.result()
 
 
+@pytest.mark.parametrize("parts", [2, 3, 7])
+def test_hashing_in_parts_covers_the_file_once(tmp_path, parts):
+    import hashlib
+
+    # frame-block jobs hash equal byte ranges; together they cover the file once, and each
+    # part's digest is the FIPS 180-4 SHA-256 (hashlib) of exactly those bytes
+    content = np.random.default_rng(parts).bytes(2 * (1 << 20) + 4321)
+    p = tmp_path / "big.bin"
+    p.write_bytes(content)
+    position = 0
+    for part in range(parts):
+        (rec,) = trj.start_describing_files([p], part, parts).result()
+        assert rec["size_bytes"] == len(content) and "sha256" not in rec
+        (piece,) = rec["sha256_parts"]
+        assert piece["first_byte"] == position
+        position = piece["stop_byte"]
+        assert piece["sha256"] == hashlib.sha256(content[piece["first_byte"]:position]).hexdigest()
+    assert position == len(content)
+    with pytest.raises(ConfigError, match="part 4 of 3"):
+        trj.byte_range_of_part(10, 3, 3)
+
+
 @pytest.mark.parametrize("n_atoms", [1, 63, 64, 65, 2001])
 def test_blockwise_vector_subtraction_equals_broadcasting(n_atoms):
     # the blocked subtraction used on float32 frames must give numpy's broadcast result exactly

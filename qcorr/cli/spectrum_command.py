@@ -238,8 +238,9 @@ def run(args: argparse.Namespace) -> int:
     # and finite differences work in float64
     precision = np.float32 if molecular is None else np.float64
     stats = trj.FrameStatistics()
-    # the inputs' SHA-256 is computed in a background thread while the frames are read
-    hashing = trj.start_describing_files(opened.files)
+    # the inputs' SHA-256 is computed in a background thread while the frames are read;
+    # block I of N hashes the I-th of N byte ranges of each file (qcorr combine joins them)
+    hashing = trj.start_describing_files(opened.files, block_index, block_count)
     try:
         for velocities in trj.stream_velocities(
             opened, channels, window, first_sample, stop_sample,
