@@ -66,7 +66,6 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from qcorr import constants as C
 from qcorr.errors import ConfigError, TrajectoryError
 
 MOLECULE_DEFINITIONS = ("residue", "fragment")
@@ -329,6 +328,7 @@ class MolecularDecomposer:
         self._axes: NDArray[np.float64] | None = None
         self.moment_sum = np.zeros((n_mol, 3))
         self.frames = 0
+        self.counted_frames = 0
         self._raw_com: NDArray[np.float64] | None = None
         self.unwrapped_com: NDArray[np.float64] | None = None
 
@@ -354,7 +354,7 @@ class MolecularDecomposer:
     # one frame --------------------------------------------------------------
     def frame(
         self, positions_A: ArrayLike, velocities_A_per_ps: ArrayLike, box: ArrayLike | None = None,
-        include_vibration: bool = False,
+        include_vibration: bool = False, count: bool = True,
     ) -> NDArray[np.float64]:
         """Channel values of one frame, shape (2·n_molecules, 3) (+ n_atoms rows).
 
@@ -362,7 +362,9 @@ class MolecularDecomposer:
         angular velocities (√u Å/ps), see the module docstring.  With
         *include_vibration*, then the residual atomic velocities
         ``v_j − V_i − ω_i × r_j`` (Å/ps; ω_⊥ for linear molecules), whose kinetic
-        energy is exactly the total minus translation minus rotation.
+        energy is exactly the total minus translation minus rotation.  The frame's
+        principal moments, each molecule's sorted ascending, add to
+        :meth:`mean_moments` when *count* is true.
         """
         lay = self.layout
         x = np.asarray(positions_A, dtype=np.float64)
@@ -405,7 +407,9 @@ class MolecularDecomposer:
             rot[linear] = Lperp / np.sqrt(perp)[:, None]  # √I ω⊥ = L⊥/√I
             omega[linear] = Lperp / perp[:, None]
             moments[linear] = vals
-        self.moment_sum += moments
+        if count:
+            self.moment_sum += np.sort(moments, axis=1)
+            self.counted_frames += 1
         self.frames += 1
         if not include_vibration:
             return np.r_[V, rot]
@@ -473,19 +477,23 @@ class MolecularDecomposer:
 
     # summaries --------------------------------------------------------------
     def mean_moments(self) -> NDArray[np.float64]:
-        """Time-mean principal moments per molecule (n_molecules, 3), u Å², in the followed-axis order."""
-        if self.frames == 0:
+        """Mean over the counted frames of each molecule's principal moments (n_molecules, 3),
+        u Å², sorted ascending in every frame."""
+        if self.counted_frames == 0:
             raise TrajectoryError("no frame was given to the molecular decomposition")
-        return self.moment_sum / self.frames
+        return self.moment_sum / self.counted_frames
 
 
 class CentreOfMassDisplacement:
     """Streaming mean-square displacement of unwrapped centres of mass per group.
 
-    Snapshots are kept every ``stride`` frames in a ring of ``n_lags + 1``, so
-    memory is (n_lags + 1) × n_molecules × 3 floats whatever the trajectory
-    length; lags are ``stride, 2·stride, …, n_lags·stride`` frames and every
-    snapshot is a time origin.
+    Snapshots are kept every ``stride`` frames (frame indices that are multiples of
+    ``stride``) in a ring of ``n_lags``, so memory is n_lags × n_molecules × 3
+    floats whatever the trajectory length; lags are ``stride, 2·stride, …,
+    n_lags·stride`` frames and every snapshot is a time origin.  A frame-block job
+    counts the pairs whose later snapshot lies in its counted frames and feeds up to
+    :attr:`longest_lag_frames` frames before them uncounted, so that the blocks'
+    sums add up to the single job's.
 
     Parameters
     ----------
@@ -509,18 +517,37 @@ class CentreOfMassDisplacement:
         self._counts = np.zeros(self.n_lags)
         self._frame = 0
 
-    def add_frame(self, unwrapped_com_A: ArrayLike) -> None:
-        """Add one frame of unwrapped centres of mass (n_molecules, 3), Å."""
-        if self._frame % self.stride == 0:
-            now = np.asarray(unwrapped_com_A, dtype=np.float64).copy()
+    @property
+    def longest_lag_frames(self) -> int:
+        """The longest lag, frames."""
+        return self.stride * self.n_lags
+
+    @property
+    def origin_counts(self) -> NDArray[np.float64]:
+        """Time origins summed at each lag, shape (n_lags,)."""
+        return self._counts.copy()
+
+    def add_frame(self, unwrapped_com_A: ArrayLike, frame: int | None = None, counted: bool = True) -> None:
+        """Add one frame of unwrapped centres of mass (n_molecules, 3), Å.
+
+        *frame* is the frame's index in the whole frame window (default: frames are
+        numbered from 0 in the order given); frames must come consecutively.  With
+        *counted* false the frame's snapshot only serves as the earlier member of
+        later pairs.
+        """
+        index = self._frame if frame is None else int(frame)
+        self._frame += 1
+        if index % self.stride:
+            return
+        now = np.asarray(unwrapped_com_A, dtype=np.float64).copy()
+        if counted:
             for k, old in enumerate(reversed(self._ring)):
                 d2 = np.einsum("ni,ni->n", now - old, now - old)
                 self._sums[:, k] += self.groups @ d2
                 self._counts[k] += 1
-            self._ring.append(now)
-            if len(self._ring) > self.n_lags:
-                self._ring.pop(0)
-        self._frame += 1
+        self._ring.append(now)
+        if len(self._ring) > self.n_lags:
+            self._ring.pop(0)
 
     def result(self) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
         """(lag_ps (n_lags,), msd_A2 (n_groups, n_lags)) averaged over origins and molecules; NaN where unseen."""
@@ -531,33 +558,18 @@ class CentreOfMassDisplacement:
         return lag, msd
 
     def self_diffusion_m2_per_s(self) -> NDArray[np.float64]:
-        """Einstein D = slope/6 (m²/s) of a straight-line fit over the longer 3/4 of the lags."""
+        """Einstein D (m²/s) per group, see :func:`qcorr.molecular_file.self_diffusion_from_msd`."""
+        from qcorr.molecular_file import self_diffusion_from_msd
+
         lag, msd = self.result()
-        use = (lag >= 0.25 * lag[-1]) & (self._counts > 0)
-        out = np.full(msd.shape[0], np.nan)
-        if use.sum() < 2:
-            return out
-        for g in range(msd.shape[0]):
-            if self.groups[g].any():
-                slope = np.polyfit(lag[use], msd[g, use], 1)[0]  # Å²/ps
-                out[g] = slope / 6.0 * C.angstrom_m**2 / C.picosecond_s
+        out = self_diffusion_from_msd(lag, msd, self._counts)
+        out[~self.groups.any(axis=1)] = np.nan
         return out
 
 
 # --------------------------------------------------------------------------
 # one streaming pass for ``qcorr spectrum --molecular``
 # --------------------------------------------------------------------------
-
-#: spectrum-file variables added by :class:`MolecularPass` (all along ``group``)
-MOLECULAR_VARIABLES = (
-    "vdos_translation", "vdos_rotation", "vdos_vibration",
-    "vdos_translation_segments", "vdos_rotation_segments", "vdos_vibration_segments",
-    "vdos_vibration_residual", "vdos_vibration_residual_segments", "whole_molecule_count", "molecule_kind_count", "molecule_mass", "principal_moments",
-    "rotational_dof_per_molecule", "vibrational_dof_per_molecule",
-    "translational_kinetic_temperature", "rotational_kinetic_temperature",
-    "vibration_difference_integral", "self_diffusion_msd",
-)
-
 
 class MolecularPass:
     """Everything ``qcorr spectrum --molecular`` adds, fed frame by frame.
@@ -571,16 +583,24 @@ class MolecularPass:
     group_members : bool array (n_groups, n_channels)
     settings : qcorr.spectrum.SpectrumSettings
     first_frame : int
-        Trajectory frame used to detect linear molecules.
+        Trajectory frame used to detect linear molecules (the window's first frame,
+        so that every frame block of a run finds the same layout).
     definition : {"residue", "fragment"}
     first_segment, stop_segment, workers :
         As for :class:`qcorr.spectrum.SegmentAccumulator`.
+    first_sample, count_stop : int
+        Velocity samples (window frames) ``first_sample .. count_stop-1`` are this
+        job's counted frames (moments, mean-square displacement); the spectra take
+        every sample from ``first_sample`` on.  Samples before ``first_sample`` (at
+        most :attr:`lookback_frames`) only provide earlier snapshots for the
+        mean-square displacement.  Default: every sample counts.
     """
 
     def __init__(self, universe, channel_indices, masses, group_members, settings, *,
                  first_frame: int = 0, definition: str = "residue", first_segment: int = 0,
                  stop_segment: int | None = None, workers: int = 1,
-                 linear_ratio: float = DEFAULT_LINEAR_RATIO) -> None:
+                 linear_ratio: float = DEFAULT_LINEAR_RATIO, first_sample: int = 0,
+                 count_stop: int | None = None) -> None:
         from qcorr.spectrum import SegmentAccumulator
 
         self.channel_indices = np.asarray(channel_indices, dtype=np.int64)
@@ -590,6 +610,8 @@ class MolecularPass:
                                    np.asarray(ts.positions[self.channel_indices], dtype=np.float64),
                                    ts.dimensions, linear_ratio)
         self.definition = definition
+        self.first_sample = int(first_sample)
+        self.count_stop = None if count_stop is None else int(count_stop)
         self.decomposer = MolecularDecomposer(self.layout)
         self.accumulator = SegmentAccumulator(
             settings, self.decomposer.channel_weights(True), self.decomposer.channel_groups(True), 3,
@@ -597,43 +619,50 @@ class MolecularPass:
         self.msd = CentreOfMassDisplacement(self.layout.group_molecules, settings.timestep_ps,
                                             settings.segment_frames)
 
-    def add_frame(self, velocities_A_per_ps, ts, *, finite_difference_timestep_ps: float | None = None):
+    @property
+    def lookback_frames(self) -> int:
+        """Samples a frame block reads before its first segment (the MSD's longest lag)."""
+        return self.msd.longest_lag_frames
+
+    def add_frame(self, velocities_A_per_ps, ts, *, sample: int | None = None,
+                  finite_difference_timestep_ps: float | None = None):
         """Add one velocity sample with the trajectory's current time step object.
 
-        For forward-difference velocities (x_{j+1} − x_j)/Δt the current frame is
-        j+1; the positions used are the midpoint x_{j+1} − v Δt/2.
+        *sample* is the sample's index in the frame window (default: counted from
+        ``first_sample`` in the order given).  For forward-difference velocities
+        (x_{j+1} − x_j)/Δt the current frame is j+1; the positions used are the
+        midpoint x_{j+1} − v Δt/2.
         """
+        if sample is None:
+            sample = self.first_sample + self.decomposer.frames
+        stop = self.count_stop
+        counted = sample >= self.first_sample and (stop is None or sample < stop)
         v = np.asarray(velocities_A_per_ps, dtype=np.float64)
         x = np.asarray(ts.positions[self.channel_indices], dtype=np.float64)
         if finite_difference_timestep_ps is not None:
             x = x - 0.5 * finite_difference_timestep_ps * v
-        values = self.decomposer.frame(x, v, ts.dimensions, include_vibration=True)
-        self.accumulator.add_frame(values)
-        self.msd.add_frame(self.decomposer.unwrapped_com)
+        values = self.decomposer.frame(x, v, ts.dimensions, include_vibration=True, count=counted)
+        if sample >= self.first_sample:
+            self.accumulator.add_frame(values)
+        if stop is None or sample < stop:
+            self.msd.add_frame(self.decomposer.unwrapped_com, sample, counted)
 
-    def variables(self, ds, *, finite_difference_timestep_ps: float | None = None) -> dict:
-        """Data variables to merge into the spectrum dataset *ds* (same groups and segments).
+    def parts(self, temperature_K: float, constraint_count: ArrayLike, *,
+              finite_difference_timestep_ps: float | None = None):
+        """The :class:`qcorr.molecular_file.MolecularParts` of this pass (after the last frame).
 
-        The translational and rotational spectra get each group's normalisation
-        factor ``degrees_of_freedom / raw_integral`` of its atomic spectrum, so that
-        ``vdos_vibration = vdos − vdos_translation − vdos_rotation`` is consistent.
-        Groups that are not made of whole molecules get NaN.
+        *temperature_K* is the stated temperature (K), *constraint_count* the
+        holonomic constraints of each group (used for the vibrational degrees of
+        freedom per molecule).
         """
+        from qcorr.molecular_file import MolecularParts
         from qcorr.spectrum_file import raw_spectra
 
         lay = self.layout
         powers = self.accumulator.result()
-        temperature = float(ds.attrs["temperature_K"])
-        raw = raw_spectra(powers.power, powers.frequency_Hz, temperature,
+        raw = raw_spectra(powers.power, powers.frequency_Hz, temperature_K,
                           finite_difference_timestep_ps=finite_difference_timestep_ps)
         n_groups = lay.group_molecules.shape[0]
-        factor = (ds["degrees_of_freedom"] / ds["raw_integral"]).values
-        trn_seg = raw[:n_groups] * factor[:, None, None]
-        rot_seg = raw[n_groups:2 * n_groups] * factor[:, None, None]
-        res_seg = raw[2 * n_groups:] * factor[:, None, None]
-        atoms_seg = ds["vdos_segments"].values
-        vib_seg = atoms_seg - trn_seg - rot_seg
-        wn = ds["wavenumber"].values
         counts = lay.group_molecules.sum(axis=1)
         moments = self.decomposer.mean_moments()
         kinds = np.c_[lay.atom_count, np.round(lay.molecule_mass, 3), lay.rotational_dof]
@@ -642,78 +671,54 @@ class MolecularPass:
         group_moments = np.full((n_groups, 3), np.nan)
         rot_dof = np.full(n_groups, np.nan)
         vib_dof = np.full(n_groups, np.nan)
-        constraints = ds["constraint_count"].values
+        constraints = np.asarray(constraint_count, dtype=np.float64)
         for g in range(n_groups):
             sel = lay.group_molecules[g]
             if not sel.any():
                 continue
             kind_count[g] = len(np.unique(kinds[sel], axis=0))
             mass[g] = lay.molecule_mass[sel].mean()
-            group_moments[g] = np.sort(moments[sel], axis=1).mean(axis=0)
+            group_moments[g] = moments[sel].mean(axis=0)
             rot_dof[g] = lay.rotational_dof[sel].mean()
             vib_dof[g] = (3 * lay.atom_count[sel].sum() - 3 * sel.sum()
                           - lay.rotational_dof[sel].sum() - constraints[g]) / sel.sum()
-        usable = lay.group_whole & (counts > 0)
-        residual = np.trapezoid(vib_seg.mean(axis=1), wn, axis=-1)
-        rigid = usable & np.isclose(vib_dof, 0.0)
-        vib_seg[rigid] = 0.0  # rigid molecules: no vibrational part (difference kept as a check)
-        res_seg[rigid] = 0.0
-        for arr in (trn_seg, rot_seg, vib_seg, res_seg):
-            arr[~usable] = np.nan
-        raw_int = np.trapezoid(raw.mean(axis=1), wn, axis=-1)
-        t_trn = temperature * raw_int[:n_groups] / np.where(usable, 3.0 * counts, np.nan)
-        t_rot = temperature * raw_int[n_groups:2 * n_groups] / np.where(
-            usable & (rot_dof > 0), rot_dof * counts, np.nan)
-        d_msd = self.msd.self_diffusion_m2_per_s()
-        d_msd[~usable] = np.nan
-        note = (f"molecules = {self.definition}s; vibration = difference DoS (atoms - translation - "
-                "rotation); NaN for groups not made of whole molecules")
-        g2 = ("group", "wavenumber")
-        g3 = ("group", "segment", "wavenumber")
-        out = {
-            "vdos_translation": (g2, trn_seg.mean(axis=1), {"units": "cm", "long_name": "centre-of-mass (translational) density of states per unit wavenumber; integral = 3 per molecule", "comment": note}),
-            "vdos_rotation": (g2, rot_seg.mean(axis=1), {"units": "cm", "long_name": "rotational density of states (principal-axis angular velocities weighted by the moments); integral = 3 (2 linear) per molecule", "comment": note}),
-            "vdos_vibration": (g2, vib_seg.mean(axis=1), {"units": "cm", "long_name": "intramolecular vibrational density of states (vdos - translation - rotation; zero for rigid molecules)", "comment": note}),
-            "vdos_vibration_residual": (g2, res_seg.mean(axis=1), {"units": "cm", "long_name": "intramolecular vibrational density of states from the residual velocities v - V - w x r (non-negative; same integral as the difference; zero for rigid molecules)", "comment": note}),
-            "vdos_vibration_residual_segments": (g3, res_seg, {"units": "cm", "long_name": "residual-velocity vibrational density of states of each segment"}),
-            "vdos_translation_segments": (g3, trn_seg, {"units": "cm", "long_name": "translational density of states of each segment"}),
-            "vdos_rotation_segments": (g3, rot_seg, {"units": "cm", "long_name": "rotational density of states of each segment"}),
-            "vdos_vibration_segments": (g3, vib_seg, {"units": "cm", "long_name": "vibrational density of states of each segment"}),
-            "whole_molecule_count": (("group",), np.where(usable, counts, 0).astype(np.int64), {"units": "1", "long_name": "molecules whose atoms all belong to the group (0: group not made of whole molecules)"}),
-            "molecule_kind_count": (("group",), kind_count, {"units": "1", "long_name": "kinds of molecule (atom count, mass, linearity) in the group"}),
-            "molecule_mass": (("group",), mass, {"units": "g mol-1", "long_name": "mean mass of one molecule of the group"}),
-            "principal_moments": (("group", "principal_axis"), group_moments, {"units": "g mol-1 Angstrom2", "long_name": "time- and molecule-mean principal moments of inertia, ascending"}),
-            "rotational_dof_per_molecule": (("group",), rot_dof, {"units": "1", "long_name": "rotational degrees of freedom per molecule (0 atom, 2 linear, 3 nonlinear)"}),
-            "vibrational_dof_per_molecule": (("group",), vib_dof, {"units": "1", "long_name": "3 n_atoms - 3 - rotational dof - constraints, per molecule"}),
-            "translational_kinetic_temperature": (("group",), t_trn, {"units": "K", "long_name": "sum(M <V^2>)/(3 N_molecules k)"}),
-            "rotational_kinetic_temperature": (("group",), t_rot, {"units": "K", "long_name": "sum(<w.I.w>)/(rotational dof k)"}),
-            "vibration_difference_integral": (("group",), residual, {"units": "1", "long_name": "integral of vdos - translation - rotation per group (check; ~0 for rigid molecules)"}),
-            "self_diffusion_msd": (("group",), d_msd, {"units": "m2 s-1", "long_name": "self-diffusion coefficient of the molecules' centres of mass from the mean-square displacement (Einstein relation, fit over lags 1/4..1 of a segment)"}),
-        }
-        return out
+        lag, msd = self.msd.result()
+        return MolecularParts(
+            raw_translation=raw[:n_groups],
+            raw_rotation=raw[n_groups:2 * n_groups],
+            raw_residual=raw[2 * n_groups:],
+            whole_molecule_count=np.where(lay.group_whole & (counts > 0), counts, 0).astype(np.int64),
+            molecule_kind_count=kind_count,
+            molecule_mass=mass,
+            rotational_dof=rot_dof,
+            vibrational_dof=vib_dof,
+            principal_moments=group_moments,
+            moment_frames=self.decomposer.counted_frames,
+            msd_lag_ps=lag,
+            msd_A2=msd,
+            msd_origins=self.msd.origin_counts,
+            definition=self.definition,
+        )
+
+    def add_variables(self, ds, *, finite_difference_timestep_ps: float | None = None):
+        """*ds* (the atomic spectrum of the same groups and segments) with the molecular variables."""
+        from qcorr.molecular_file import add_molecular_variables
+
+        parts = self.parts(float(ds.attrs["temperature_K"]), ds["constraint_count"].values,
+                           finite_difference_timestep_ps=finite_difference_timestep_ps)
+        return add_molecular_variables(ds, parts)
 
 
 def pass_for_spectrum_command(args, opened, channels, groups, settings, window, first_segment,
-                              stop_segment, block_count: int) -> MolecularPass | None:
-    """The :class:`MolecularPass` for ``qcorr spectrum --molecular`` (None without the option).
-
-    Raises
-    ------
-    ConfigError
-        ``--molecular`` with ``--block`` (the blocks' molecular spectra cannot be
-        combined yet), or an unknown ``--molecules`` value.
-    """
+                              stop_segment, first_sample: int, count_stop: int) -> MolecularPass | None:
+    """The :class:`MolecularPass` for ``qcorr spectrum --molecular`` (None without the option)."""
     if not getattr(args, "molecular", False):
         return None
-    if block_count > 1:
-        raise ConfigError(
-            "--molecular cannot be combined with --block yet (qcorr combine does not join the "
-            "molecular spectra); run the whole frame window in one job"
-        )
     definition = getattr(args, "molecules", "residue") or "residue"
     return MolecularPass(
         opened.universe, channels.indices, channels.masses,
         np.array([g.members for g in groups], dtype=bool), settings,
         first_frame=window.start, definition=definition, first_segment=first_segment,
-        stop_segment=stop_segment, workers=args.threads,
+        stop_segment=stop_segment, workers=args.threads, first_sample=first_sample,
+        count_stop=count_stop,
     )

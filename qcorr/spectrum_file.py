@@ -578,7 +578,9 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
     )
     attrs["diagnostics"] = "[]"
     attrs["input_files"] = json.dumps(input_files)
-    return assemble_spectrum(
+    for name in ("principal_moment_frames", "molecular_decomposition", "molecule_definition"):
+        attrs.pop(name, None)  # set again below for molecular blocks
+    combined = assemble_spectrum(
         raw_segments=np.concatenate([raw_segments_of(ds) for ds in datasets], axis=1),
         correlation_segments=np.concatenate([ds["vacf_segments_raw"].values for ds in datasets], axis=1),
         wavenumber=first["wavenumber"].values,
@@ -588,3 +590,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         segment_first_frame=np.concatenate([ds["segment_first_frame"].values for ds in datasets]),
         attrs=attrs,
     )
+    from qcorr.molecular_file import add_molecular_variables, combine_molecular_parts
+
+    parts = combine_molecular_parts(datasets, names)
+    return combined if parts is None else add_molecular_variables(combined, parts)

@@ -363,11 +363,9 @@ def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp
     # share uncorrected: here 8e-6 relative, bounded well below 1e-4 at these bins
     assert parts[2] + parts[3] == pytest.approx(parts[0], rel=1e-4)
     # bad combinations are refused before the frame loop, and no file is written
-    code, _, err = run_qcorr(*base, "--molecular", "--block", "1-of-2", "--output", tmp_path / "b.nc")
-    assert code != 0 and "--molecular cannot be combined with --block" in err
     code, _, err = run_qcorr(*base, "--molecular", "--molecules", "fragment", "--output", tmp_path / "f.nc")
     assert code != 0 and "--molecules fragment needs bonds" in err
-    assert not (tmp_path / "b.nc").exists() and not (tmp_path / "f.nc").exists()
+    assert not (tmp_path / "f.nc").exists()
 
 
 def test_kinetic_energy_split_holds_frame_after_frame():
@@ -394,3 +392,71 @@ def test_kinetic_energy_split_holds_frame_after_frame():
         assert split == pytest.approx(total, rel=1e-10)
     moments = dec.mean_moments()[:5]
     np.testing.assert_allclose(np.sort(moments, axis=1), expected, rtol=1e-10)
+
+
+@pytest.mark.parametrize("source", ["stored", "positions"])
+def test_molecular_frame_blocks_combine_to_the_single_job(tmp_path, run_qcorr, source):
+    # Real engine: the bundled OpenMM flexible-water demo (64 molecules, 1001 frames,
+    # diffusing).  Frame blocks joined by 'qcorr combine' must give the single job's
+    # molecular spectra, moments, mean-square displacement and self-diffusion up to
+    # rounding, and so the same 2PT table.  The segments (0.6 ps = 200 frames, 9 of them)
+    # are split 3/3/3 (stored) or 5/4 (positions), so blocks 2 and 3 each need the
+    # 192-frame look-back of the MSD's longest lag.
+    import pathlib
+
+    import pandas as pd
+
+    from qcorr.spectrum_file import read_spectrum
+
+    demo = pathlib.Path(__file__).resolve().parents[1] / "resources" / "demo" / "water_flexible_298K"
+    base = ["spectrum", "--topology", demo / "topology.pdb", "--trajectory", demo / "trajectory.trr",
+            "--temperature", 298.15, "--segment-ps", 0.6, "--molecular", "--progress", "never",
+            "--group", "water=resname TIP3", "--group", "oxygen=name OH2",
+            "--velocities-from", source]
+    single = tmp_path / "single.nc"
+    code, _, err = run_qcorr(*base, "--output", single)
+    assert code == 0, err
+    count = 3 if source == "stored" else 2
+    blocks = []
+    for i in range(1, count + 1):
+        blocks.append(tmp_path / f"block{i}.nc")
+        code, _, err = run_qcorr(*base, "--block", f"{i}-of-{count}", "--output", blocks[-1])
+        assert code == 0, err
+    joined = tmp_path / "joined.nc"
+    code, _, err = run_qcorr("combine", *reversed(blocks), "--output", joined)
+    assert code == 0, err
+    a, b = read_spectrum(single), read_spectrum(joined)
+    assert set(a.data_vars) == set(b.data_vars)
+    assert "mean_square_displacement" in a.data_vars
+    for name in a.data_vars:
+        if a[name].dtype.kind == "f":
+            # relative 1e-10, and 1e-13 of the variable's largest value for elements that
+            # are differences of larger numbers (vibration = atoms - translation - rotation)
+            scale = float(np.nanmax(np.abs(a[name].values))) if np.isfinite(a[name].values).any() else 0.0
+            np.testing.assert_allclose(b[name].values, a[name].values, rtol=1e-10, atol=1e-13 * scale,
+                                       equal_nan=True, err_msg=name)
+        else:
+            np.testing.assert_array_equal(b[name].values, a[name].values, err_msg=name)
+    for attr in ("principal_moment_frames", "molecule_definition", "statistics_frames", "frames_used"):
+        assert a.attrs[attr] == b.attrs[attr], attr
+    water = [str(g) for g in a["group"].values].index("water")
+    assert int(a["whole_molecule_count"].values[water]) == 64
+    assert np.isnan(a["self_diffusion_msd"].values[[str(g) for g in a["group"].values].index("oxygen")])
+    assert a["self_diffusion_msd"].values[water] > 0
+    tables = []
+    for name in (single, joined):
+        out = tmp_path / f"{name.stem}.csv"
+        code, _, err = run_qcorr("liquid", name, "--group", "water", "--symmetry-number", "2",
+                                 "--quiet", "--output", out)
+        assert code == 0, err
+        tables.append(pd.read_csv(out))
+    numeric = tables[0].select_dtypes("number").columns
+    np.testing.assert_allclose(tables[1][numeric].to_numpy(float), tables[0][numeric].to_numpy(float),
+                               rtol=1e-9, atol=1e-12, equal_nan=True)
+    if source == "stored":
+        # a block made without --molecular does not join the others
+        plain = tmp_path / "plain.nc"
+        args = [str(x) for x in base if str(x) != "--molecular"]
+        assert run_qcorr(*args, "--block", f"2-of-{count}", "--output", plain)[0] == 0
+        code, _, err = run_qcorr("combine", blocks[0], plain, blocks[2], "--output", tmp_path / "x.nc")
+        assert code != 0 and "has no molecular spectra" in err and not (tmp_path / "x.nc").exists()

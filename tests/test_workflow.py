@@ -361,8 +361,6 @@ BAD_SHEETS = {
                         "matches no atom"),
     "unknown column": ([copper_row(colour="blue")], "header row", "'colour'",
                        "unknown column"),
-    "liquid in frame blocks": ([copper_row(liquid="true", blocks="2")], "row 1", "'blocks'",
-                               "cannot be split into frame blocks"),
     "unknown 2PT choice": ([copper_row(hard_sphere_entropy="guess")], "row 1",
                            "'hard_sphere_entropy'", "guess"),
 }
@@ -370,11 +368,12 @@ BAD_SHEETS = {
 
 def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):
     """The sheet's 2PT columns (issue 6 item 4) become 'qcorr liquid' options; defaults are
-    the published forms (Lin, Blanco, Goddard 2003)."""
+    the published forms (Lin, Blanco, Goddard 2003).  A liquid may be split into frame
+    blocks: each block job gets --molecular, and 'qcorr combine' joins them."""
     sheet = demo_sheet()
     water = sheet[sheet["liquid"].astype(str).str.lower() == "true"].iloc[0].to_dict()
     chosen = dict(water, system="water_choices", hard_sphere_entropy="constant-volume",
-                  rotational_fluidicity="same-as-translation", diffusion_from="msd")
+                  rotational_fluidicity="same-as-translation", diffusion_from="msd", blocks=2)
     rows = [{k: ("" if pd.isna(v) else v) for k, v in row.items()} for row in (water, chosen)]
     name = sheet_with(demo_copy, rows, "liquid_choices.tsv")
     try:
@@ -394,6 +393,11 @@ def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):
     for text in ("--hard-sphere-entropy constant-volume",
                  "--rotational-fluidicity same-as-translation", "--diffusion-from msd"):
         assert text in custom
+    lines = (dry.stdout + dry.stderr).splitlines()
+    block_jobs = [line for line in lines if "qcorr spectrum " in line and "--block " in line]
+    assert len(block_jobs) == 2 and all("--molecular" in line for line in block_jobs), explain(dry)
+    assert {line.split("--block ")[1].split()[0] for line in block_jobs} == {"1-of-2", "2-of-2"}
+    assert any("qcorr combine " in line and "water_choices" in line for line in lines), explain(dry)
 
 
 @pytest.mark.slow

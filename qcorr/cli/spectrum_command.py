@@ -232,7 +232,10 @@ def run(args: argparse.Namespace) -> int:
     from qcorr.molecular import pass_for_spectrum_command
     fd_step = window.timestep_ps if positions else None
     molecular = pass_for_spectrum_command(args, opened, channels, groups, settings, window,
-                                          first_seg, stop_seg, block_count)
+                                          first_seg, stop_seg, first_sample, count_stop)
+    # a frame block of a molecular run reads up to one longest MSD lag before its first
+    # segment, for the earlier members of its displacement pairs (qcorr.molecular_file)
+    read_from = first_sample if molecular is None else max(0, first_sample - molecular.lookback_frames)
     # stored velocities stay in the reader's single precision through the atomic estimator
     # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
     # and finite differences work in float64
@@ -242,14 +245,15 @@ def run(args: argparse.Namespace) -> int:
     # block I of N hashes the I-th of N byte ranges of each file (qcorr combine joins them)
     hashing = trj.start_describing_files(opened.files, block_index, block_count)
     try:
-        for velocities in trj.stream_velocities(
-            opened, channels, window, first_sample, stop_sample,
+        for sample, velocities in enumerate(trj.stream_velocities(
+            opened, channels, window, read_from, stop_sample,
             source=args.velocities_from, count_from=first_sample, count_stop=count_stop,
             statistics=stats, progress_mode=args.progress, dtype=precision,
-        ):
-            accumulator.add_frame(velocities)
+        ), start=read_from):
+            if sample >= first_sample:
+                accumulator.add_frame(velocities)
             if molecular is not None:
-                molecular.add_frame(velocities, opened.universe.trajectory.ts,
+                molecular.add_frame(velocities, opened.universe.trajectory.ts, sample=sample,
                                     finite_difference_timestep_ps=fd_step)
         powers = accumulator.result()
         input_files = hashing.result()
@@ -312,8 +316,7 @@ def run(args: argparse.Namespace) -> int:
         attrs=attrs,
     )
     if molecular is not None:
-        ds = ds.assign(molecular.variables(ds, finite_difference_timestep_ps=fd_step))
-        ds.attrs["molecular_decomposition"] = f"molecules = {args.molecules}s (qcorr.molecular)"
+        ds = molecular.add_variables(ds, finite_difference_timestep_ps=fd_step)
     finish(ds, args.output)
     return 0
 

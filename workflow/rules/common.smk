@@ -208,13 +208,6 @@ def check_cells(row, where):
             )
         for number in numbers.split(","):
             parse_positive_number(number.strip(), "frozen_bond_wavenumbers", where)
-    if bool(row["liquid"]) and int(row["blocks"]) > 1:
-        raise sheet_error(
-            where,
-            "blocks",
-            "a liquid (2PT) system cannot be split into frame blocks yet "
-            "('qcorr combine' does not join the molecular spectra): set blocks to 1",
-        )
     if "stop" in row and pd.notna(row.get("stop")) and row["stop"] <= row["start"]:
         raise sheet_error(
             where,
