@@ -66,7 +66,6 @@ References
 from __future__ import annotations
 
 import math
-from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -323,7 +322,7 @@ class SegmentAccumulator:
     section 24.1), far below the statistical error of any spectrum from MD.
 
     Memory does not depend on the number of frames: with 50 % overlap the frame
-    buffer is half a segment (two halves when a background thread is used) and the
+    buffer is half a segment and the
     transforms of the previous half take about one segment; otherwise the buffer is
     one segment.  The FFT workspace is a few hundred kB per chunk of channels.  Only
     the per-segment results (n_groups x (L/2 + 1 + L) numbers per segment) grow.
@@ -338,10 +337,10 @@ class SegmentAccumulator:
     n_components : int
         Components per channel (3 for Cartesian velocities).
     workers : int
-        Threads (option ``--threads``).  With 1 everything runs in the caller's thread.
-        With ``N >= 2`` and 50 % overlap, finished half segments are transformed in one
-        background thread (using ``N - 1`` FFT threads) while the caller reads the next
-        frames; the results are identical.  Other overlaps use ``N`` FFT threads.
+        FFT threads (option ``--threads``; :func:`scipy.fft.rfft` ``workers``).  Transforms
+        run in the caller's thread.  (Transforming finished half segments in a background
+        thread while the caller reads on was tried and dropped: with MDAnalysis' reader
+        holding the GIL the two threads took turns and the run was 5-12 % slower.)
     first_segment, stop_segment : int
         Only segments ``first_segment .. stop_segment-1`` of the frame window are
         kept (a frame block); frames must be fed from
@@ -410,24 +409,17 @@ class SegmentAccumulator:
         # the two segments that contain it; otherwise each segment is transformed whole.
         self._half_overlap = _route == "auto" and settings.hop_frames == half
         if self._half_overlap:
-            # with two or more threads, the finished half segment is transformed by a
-            # background thread while the caller fills a second buffer (numpy and pocketfft
-            # release the GIL); results are identical to the serial order
-            self._pipelined = self.workers >= 2
             self._chunk = min(rows, max(8, _CHUNK_BYTES // (L * 8)))
             self._previous: list[NDArray[np.complexfloating]] = []
             self._previous_auto: NDArray[np.float64] | None = None
         else:
-            self._pipelined = False
             self._chunk = min(rows, max(8, _CHUNK_BYTES // (2 * L * 8)))
         # frame buffer and FFT workspace are allocated at the first frame, in its precision
         self.dtype: np.dtype | None = None
         self.buffer: NDArray[np.floating] | None = None
         window = taper_window(settings)
         self._window_power = float(np.sum(window * window))
-        self._fft_workers = max(1, self.workers - 1) if self._pipelined else self.workers
-        self._executor: ThreadPoolExecutor | None = None
-        self._pending: Future | None = None
+        self._fft_workers = self.workers
         self._frames_fed = 0
         self._power: list[NDArray[np.float64]] = []
         self._correlation: list[NDArray[np.float64]] = []
@@ -452,7 +444,6 @@ class SegmentAccumulator:
             # frame-major buffer of one half segment (frame f lives in row f % half) and the
             # L-point transforms of the previous half segment, one array per chunk of rows
             self.buffer = np.zeros((half, rows), dtype)
-            self._spare = np.zeros((half, rows), dtype) if self._pipelined else None
             self.workspace = np.zeros((chunk, L), dtype)
             self._combined = np.zeros((chunk, half + 1), complex_dtype)
             # e^{-i 2 pi m hop / L} = (-1)^m: phase of the second half in the segment's DFT
@@ -475,8 +466,7 @@ class SegmentAccumulator:
 
     @property
     def segments_done(self) -> int:
-        """Number of segments transformed and kept so far (waits for a background transform)."""
-        self._wait()
+        """Number of segments transformed and kept so far."""
         return len(self._power)
 
     def _segments_wanted(self) -> int | None:
@@ -509,16 +499,7 @@ class SegmentAccumulator:
             self.buffer[self._frames_fed % hop] = values.reshape(-1)
             self._frames_fed += 1
             if self._frames_fed % hop == 0:
-                if self._pipelined:
-                    self._wait()
-                    if self._executor is None:
-                        self._executor = ThreadPoolExecutor(max_workers=1)
-                    full, self.buffer, self._spare = self.buffer, self._spare, self.buffer
-                    self._pending = self._executor.submit(
-                        self._transform_half, full, self._frames_fed
-                    )
-                else:
-                    self._transform_half(self.buffer, self._frames_fed)
+                self._transform_half(self.buffer, self._frames_fed)
             return
         self.buffer[self._frames_fed % L] = values.reshape(-1)
         self._frames_fed += 1
@@ -581,12 +562,6 @@ class SegmentAccumulator:
         self._power.append(power)
         self._correlation.append(lagged)
         self._first_frames.append(start)
-
-    def _wait(self) -> None:
-        """Wait for the background transform (if any); re-raise its exception here."""
-        if self._pending is not None:
-            pending, self._pending = self._pending, None
-            pending.result()
 
     def _transform_half(self, block: NDArray[np.floating], frames_fed: int) -> None:
         """Transform the half segment just completed; finish the segment it closes (if any).
@@ -675,10 +650,6 @@ class SegmentAccumulator:
             If no full segment was seen.
         """
         L = self.settings.segment_frames
-        self._wait()
-        if self._executor is not None:
-            self._executor.shutdown()
-            self._executor = None
         if not self._power:
             raise SamplingError(
                 f"fewer frames than one segment: got {self._frames_fed} frames, a segment "

@@ -211,9 +211,10 @@ def test_half_overlap_route_equals_whole_segment_route(taper):
 
 
 @pytest.mark.parametrize("stop_segment", [None, 6])
-def test_background_thread_gives_identical_results(stop_segment):
-    # Oracle: the serial run; with threads the same operations run in the same order on a
-    # second buffer, so the results must be bit-identical.
+def test_fft_threads_give_the_serial_results(stop_segment):
+    # Oracle: the serial run; FFT worker threads split the transforms over channels
+    # (pocketfft's own arithmetic per channel is unchanged), so the results are equal to
+    # rounding.
     rng = np.random.default_rng(12)
     x = rng.standard_normal((257, 6, 3))
     s = SpectrumSettings(0.001, 20, 0.5)
@@ -223,12 +224,12 @@ def test_background_thread_gives_identical_results(stop_segment):
     threaded_acc = SegmentAccumulator(
         s, np.arange(1.0, 7.0), members, workers=2, stop_segment=stop_segment
     )
-    assert threaded_acc._pipelined
+    assert threaded_acc._fft_workers == 2
     threaded = feed(threaded_acc, x)
     a, b = serial.result(), threaded.result()
     assert a.power.shape[1] == (6 if stop_segment else 24)
     for name in ("power", "correlation", "mean_square", "segment_first_frame"):
-        np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+        np.testing.assert_allclose(getattr(a, name), getattr(b, name), rtol=1e-14, atol=0)
 
 
 # --------------------------------------------------------------------------- harmonic oscillators
@@ -688,7 +689,6 @@ def test_short_block_raises_sampling_error():
 
 @pytest.mark.parametrize(("overlap", "threads"), [(0.5, 1), (0.25, 1), (0.5, 2)])
 def test_non_finite_values_name_the_frames(overlap, threads):
-    # with a background thread the error surfaces at the next half segment or at result()
     s = SpectrumSettings(0.002, 10, overlap)
     x = np.ones((40, 2, 3))
     x[3, 1, 2] = np.nan
