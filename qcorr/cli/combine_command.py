@@ -12,7 +12,10 @@ HELP = "join the block files of 'qcorr spectrum --block I-of-N' into one spectru
 DESCRIPTION = (
     "Join the N frame-block files written by 'qcorr spectrum --block I-of-N' (same inputs and "
     "settings) into the spectrum file a single run over all frames would give: segments are "
-    "concatenated in order and the spectrum is normalised again to the degrees of freedom."
+    "concatenated in order and the spectrum is normalised again to the degrees of freedom; "
+    "blocks made with --molecular also join their molecular spectra, principal moments and "
+    "mean-square displacements. Each block's SHA-256 record of a byte range of every input "
+    "is kept, and the ranges must cover every file."
 )
 
 
