@@ -24,12 +24,14 @@ What reproducible means here
 ----------------------------
 Every run is deterministic: all random numbers come from fixed seeds, OpenMM runs on its
 CPU platform with one thread and ``DeterministicForces``, ASE's EMT is plain NumPy.  With the same versions of the
-engines and NumPy on the same kind of processor, regeneration is therefore *bitwise*
-identical, and ``--check`` demands that (``identical``).  Any other build changes the last
+engines and NumPy on the same kind of processor (the same SIMD code paths of NumPy and
+its BLAS, recorded as ``cpu_features``: two x86_64 machines with and without AVX-512
+sum in different orders), regeneration is therefore *bitwise* identical, and
+``--check`` demands that (``identical``).  Any other build changes the last
 bits of some force, and molecular dynamics is chaotic (Lyapunov instability): such
 differences grow until the trajectories are unrelated after a few ps, while their
 statistics stay the same.  When the recorded versions differ from the installed ones,
-``--check`` therefore demands only statistical agreement: same atoms, masses, frames, time
+(or a record names no CPU code paths), ``--check`` therefore demands only statistical agreement: same atoms, masses, frames, time
 stamps and box, and mean kinetic temperatures that agree within four standard errors of
 their difference, estimated from the canonical fluctuation sqrt(2/dof) and the thermostat's
 coupling time (``statistically consistent``).  Exit status 0 when the check passes, 1
@@ -75,14 +77,17 @@ DEMO_SYSTEMS: dict[str, engines.Spec] = {
 }
 
 #: Versions that must match for a bitwise-identical regeneration to be expected.
-VERSION_KEYS = ("engine_version", "numpy", "machine")
+VERSION_KEYS = ("engine_version", "numpy", "machine", "cpu_features")
 
 
-def _versions(settings: dict) -> dict[str, str]:
+def _versions(settings: dict) -> dict[str, str | None]:
+    """The build a trajectory was made with; ``cpu_features`` is None in records made
+    before it was recorded (then a bitwise match cannot be expected)."""
     return {
         "engine_version": settings["engine"]["version"],
         "numpy": settings["software"]["numpy"],
         "machine": settings["software"]["machine"],
+        "cpu_features": settings["software"].get("cpu_features"),
     }
 
 
@@ -122,7 +127,7 @@ def compare_system(name: str, committed: Path, regenerated: Path) -> tuple[bool,
         return False, f"{name}: frame count or time stamps differ ({len(old[2])} vs {len(new[2])} frames)"
     if not np.allclose(old[3], new[3], rtol=1e-6):
         return False, f"{name}: box dimensions differ"
-    same_versions = _versions(old_settings) == _versions(new_settings)
+    same_versions = _versions(old_settings) == _versions(new_settings) and None not in _versions(old_settings).values()
     identical = np.array_equal(old[4], new[4]) and np.array_equal(old[5], new[5])
     if identical:
         return True, f"{name}: identical ({len(old[2])} frames)"
@@ -130,7 +135,7 @@ def compare_system(name: str, committed: Path, regenerated: Path) -> tuple[bool,
     first = int(np.argmax(deviation > 1e-3)) if np.any(deviation > 1e-3) else None
     where = f"velocities first differ by > 1e-3 Å/ps at frame {first}" if first is not None else "differences below 1e-3 Å/ps"
     if same_versions:
-        return False, f"{name}: not identical although engine, NumPy and machine match the recorded ones ({where})"
+        return False, f"{name}: not identical although engine, NumPy, machine and CPU code paths match the recorded ones ({where})"
     # Different build: statistics only.  The canonical relative fluctuation of the kinetic
     # temperature is sqrt(2/dof); a run of length t with a global thermostat of coupling
     # time tau holds at least t/(2 tau) independent samples; two runs, four standard errors.

@@ -215,6 +215,30 @@ def settings_digest(spec: Spec) -> str:
 # --------------------------------------------------------------------------------------
 
 
+def cpu_features() -> str:
+    """The CPU code paths NumPy and its BLAS chose here, e.g. ``"numpy AVX512F,... ; blas Haswell"``.
+
+    Vectorised loops and BLAS kernels sum in different orders on different instruction
+    sets, so a chaotic MD run is bitwise reproducible only where these match (common
+    practice); ``platform.machine()`` alone ("x86_64") does not tell.  Uses NumPy's
+    dispatch tables (as ``numpy.show_runtime`` does) and threadpoolctl when installed.
+    """
+    try:
+        from numpy._core._multiarray_umath import __cpu_dispatch__, __cpu_features__
+
+        simd = ",".join(sorted(f for f in __cpu_dispatch__ if __cpu_features__.get(f)))
+    except ImportError:
+        simd = "unknown"
+    try:
+        from threadpoolctl import threadpool_info
+
+        blas = ",".join(sorted({str(i.get("architecture")) for i in threadpool_info()
+                                if i.get("user_api") == "blas"})) or "none"
+    except ImportError:
+        blas = "unknown"
+    return f"numpy {simd}; blas {blas}"
+
+
 def file_record(path: Path) -> dict[str, Any]:
     """Name, size and SHA-256 of a file."""
     digest = hashlib.sha256()
@@ -893,6 +917,7 @@ def make_system(spec: Spec, directory: Path, threads: int = 1) -> dict[str, Any]
             "numpy": np.__version__,
             "mdanalysis": __import__("MDAnalysis").__version__,
             "machine": platform.machine(),
+            "cpu_features": cpu_features(),
         },
         "wall_time_s": round(wall, 1),
         "cpu_time_s": round(cpu, 1),
