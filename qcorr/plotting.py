@@ -214,9 +214,11 @@ def _save(figure: Figure, path: str | os.PathLike[str], option: str) -> Path:
     if fmt == "pdf":
         metadata["CreationDate"] = None
         metadata.pop("Date")
-    with matplotlib.rc_context({"svg.hashsalt": "qcorr", "svg.fonttype": "path"}):
-        with atomic_path(path) as tmp:
-            figure.savefig(tmp, format=fmt, metadata=metadata, dpi=150)
+    with (
+        matplotlib.rc_context({"svg.hashsalt": "qcorr", "svg.fonttype": "path"}),
+        atomic_path(path) as tmp,
+    ):
+        figure.savefig(tmp, format=fmt, metadata=metadata, dpi=150)
     return Path(path)
 
 

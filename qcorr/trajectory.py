@@ -230,7 +230,7 @@ def open_trajectory(
             if fmt:
                 kwargs["format"] = fmt
             universe = mda.Universe(str(top), *[str(t) for t in trajs], **kwargs)
-    except Exception as err:  # MDAnalysis raises many types for unreadable input
+    except Exception as err:  # noqa: BLE001 -- MDAnalysis raises many types for unreadable input
         message = (
             f"cannot read '{top}' with {', '.join(map(str, trajs))} ({_first_line(err)}); check "
             "that the files are complete and that --topology-format/--trajectory-format are right"
@@ -400,7 +400,7 @@ class FileDescriptions:
     def _work(self) -> None:
         try:
             self._records = describe_files(self._paths, self._cancel, part=self._part, parts=self._parts)
-        except BaseException as err:  # handed to the caller's thread by result()
+        except BaseException as err:  # noqa: BLE001 -- handed to the caller's thread by result()
             self._error = err
 
     def result(self) -> list[dict[str, object]]:
@@ -1056,7 +1056,7 @@ def _guarded(frames, opened: OpenedTrajectory, window: FrameWindow, first_sample
             ts = next(iterator)
         except StopIteration:
             return
-        except Exception as err:
+        except Exception as err:  # noqa: BLE001 -- any reader failure becomes one message naming the frame
             message = (
                 f"cannot read {opened.where(window.frame(first_sample + k))} "
                 f"({_first_line(err)}); the file is truncated or corrupt there: use --stop to "

@@ -203,7 +203,7 @@ def write_lammps_dump(scn: Scenario, path: Path, *, units: str, md_timestep: flo
     expected = scn.timestep_ps * per_ps
     if not np.isclose(md_timestep * steps_per_frame, expected, rtol=1e-12):
         raise ValueError("md_timestep * steps_per_frame must equal the frame spacing")
-    first_step = int(round(scn.times_ps[0] * per_ps / md_timestep))
+    first_step = round(scn.times_ps[0] * per_ps / md_timestep)
     lines = []
     for k in range(scn.n_frames):
         lines += [

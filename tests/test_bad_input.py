@@ -86,7 +86,7 @@ def test_bad_input_one_line_nonzero_no_output(case, bad_files, tmp_path, run_qco
     build, fragments = CASES[case]
     out = tmp_path / "out" / "spectrum.nc"
     argv = [str(a) for a in build(bad_files)]
-    code, stdout, stderr = run_qcorr("spectrum", *argv, "--output", out)
+    code, _, stderr = run_qcorr("spectrum", *argv, "--output", out)
     assert code != 0
     errors = [line for line in stderr.splitlines() if line.startswith("qcorr: error:")]
     assert len(errors) == 1, stderr

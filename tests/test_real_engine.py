@@ -26,6 +26,8 @@ Checks (sources beside each):
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 import pytest
 
@@ -177,7 +179,7 @@ def test_finite_differences_match_stored_velocities_below_half_nyquist(argon_run
     total_d = np.trapezoid(raw_d[below], wn[below])
     assert total_d == pytest.approx(total_s, rel=0.01)
     edges = np.arange(0.0, thz[below][-1] + 1.0, 1.0)  # 1-THz bands
-    for lo, hi in zip(edges[:-1], edges[1:]):
+    for lo, hi in itertools.pairwise(edges):
         band = below & (thz >= lo) & (thz <= hi)
         if band.sum() < 2:
             continue
