@@ -495,14 +495,15 @@ def combine_file_records(records: list, names: list[str]) -> list[dict]:
 def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: str) -> xr.Dataset:
     """Rebuild the single-job spectrum from the frame-block files of one run.
 
-    The blocks must come from the same inputs (SHA-256), settings and groups, with
-    block indices 1..N each present once and their segments covering the frame window
-    without gap or repeat.  Raw per-segment spectra and correlations are concatenated
-    in segment order and normalised again (:func:`assemble_spectrum`), which gives the
-    single-job result up to floating-point rounding.  Frame statistics (box volume,
-    centre-of-mass motion) are frame-weighted means: each block counts the frames from
-    its first segment's start up to the next block's (the last block to its end), as
-    the single job does.
+    The blocks must come from the same inputs (names and sizes; their SHA-256 parts must
+    cover every file), settings and groups, with block indices 1..N each present once
+    and their segments covering the frame window without gap or repeat.  Raw
+    per-segment spectra and correlations are concatenated in segment order and
+    normalised again (:func:`assemble_spectrum`), which gives the single-job result up
+    to floating-point rounding.  Frame statistics (box volume, centre-of-mass motion)
+    are frame-weighted means: each block counts the frames from its first segment's
+    start up to the next block's (the last block to its end), as the single job does.
+    Molecular variables are joined by :func:`qcorr.molecular_file.combine_molecular_parts`.
 
     Parameters
     ----------
@@ -519,6 +520,20 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         Mismatching blocks, missing or repeated block indices, or gaps/repeats in the
         segments (names the block file and the item).
     """
+    count = _check_blocks(datasets, names)
+    datasets, names = _in_block_order(datasets, names, range(1, count + 1))
+    input_files = combine_file_records([json_attribute(ds, "input_files") for ds in datasets], names)
+    n_window = int(datasets[0].attrs["segment_count_window"])
+    joined = join_blocks(datasets, names, command_line, (0, n_window), 1, 1)
+    joined.attrs["input_files"] = json.dumps(input_files)
+    joined.attrs["combined_from"] = json.dumps(
+        [{"name": Path(n).name, "block_index": int(ds.attrs["block_index"])} for n, ds in zip(names, datasets)]
+    )
+    return joined
+
+
+def _check_blocks(datasets: list[xr.Dataset], names: list[str]) -> int:
+    """Check that *datasets* are blocks of one run; return their block count."""
     for ds, name in zip(datasets, names):
         for attr in COMBINE_ATTRIBUTES:
             if attr not in ds.attrs:
@@ -535,25 +550,38 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         _same([ds.attrs[attr] for ds in datasets], f"attribute '{attr}'", names)
     for var in ("group", "wavenumber", "lag", *GROUP_TABLE):
         _same([ds[var].values for ds in datasets], f"'{var}'", names)
+    return int(datasets[0].attrs["block_count"])
+
+
+def _in_block_order(datasets: list[xr.Dataset], names: list[str], expected: range):
+    """*datasets* and *names* sorted by block index; the indices must be exactly *expected*."""
     count = int(datasets[0].attrs["block_count"])
     indices = [int(ds.attrs["block_index"]) for ds in datasets]
-    if sorted(indices) != list(range(1, count + 1)):
-        missing = sorted(set(range(1, count + 1)) - set(indices))
+    if sorted(indices) != list(expected):
+        missing = sorted(set(expected) - set(indices))
         repeated = sorted({i for i in indices if indices.count(i) > 1})
         raise SpectrumFileError(
             f"the blocks given are {sorted(indices)} of {count}: missing {missing}, repeated "
-            f"{repeated}; give each block 1..{count} exactly once"
+            f"{repeated}; give each block {expected.start}..{expected.stop - 1} exactly once"
         )
     order = np.argsort(indices)
-    datasets = [datasets[i] for i in order]
-    names = [names[i] for i in order]
-    input_files = combine_file_records([json_attribute(ds, "input_files") for ds in datasets], names)
+    return [datasets[i] for i in order], [names[i] for i in order]
+
+
+def join_blocks(datasets: list[xr.Dataset], names: list[str], command_line: str,
+                segment_range: tuple[int, int], block_index: int, block_count: int) -> xr.Dataset:
+    """Join consecutive frame blocks (in block order) covering *segment_range* into one.
+
+    The result is block *block_index* (1-based) of *block_count* (1 of 1: the whole
+    window) with its segments ``segment_range[0] .. segment_range[1]-1``.  Used by
+    :func:`combine_blocks` and by ``qcorr spectrum --threads`` for the worker
+    processes' sub-blocks.  ``input_files`` is left as the first block's.
+    """
     segments = np.concatenate([ds["segment"].values for ds in datasets])
-    n_window = int(datasets[0].attrs["segment_count_window"])
-    if not np.array_equal(segments, np.arange(n_window)):
+    if not np.array_equal(segments, np.arange(*segment_range)):
         raise SpectrumFileError(
-            f"the segments of the blocks do not cover 0..{n_window - 1} once each in order; "
-            "the block files come from different runs"
+            f"the segments of the blocks do not cover {segment_range[0]}..{segment_range[1] - 1} "
+            "once each in order; the block files come from different runs"
         )
     first = datasets[0]
     table = {"group": first["group"].values}
@@ -563,8 +591,8 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
     com = np.array([float(ds.attrs["centre_of_mass_mv2_u_A2_per_ps2"]) for ds in datasets])
     attrs = dict(first.attrs)
     attrs.update(
-        block_index=1,
-        block_count=1,
+        block_index=int(block_index),
+        block_count=int(block_count),
         command_line=command_line,
         frames_used=int(datasets[-1]["segment_first_frame"].values[-1]
                         - first["segment_first_frame"].values[0]) // int(attrs["frame_step"])
@@ -572,12 +600,8 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         statistics_frames=int(frames.sum()),
         mean_box_volume_A3=float((box * frames).sum() / frames.sum()),
         centre_of_mass_mv2_u_A2_per_ps2=float((com * frames).sum() / frames.sum()),
-        combined_from=json.dumps(
-            [{"name": Path(n).name, "block_index": int(ds.attrs["block_index"])} for n, ds in zip(names, datasets)]
-        ),
     )
     attrs["diagnostics"] = "[]"
-    attrs["input_files"] = json.dumps(input_files)
     for name in ("principal_moment_frames", "molecular_decomposition", "molecule_definition"):
         attrs.pop(name, None)  # set again below for molecular blocks
     combined = assemble_spectrum(

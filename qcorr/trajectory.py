@@ -322,7 +322,7 @@ def describe_files(
 ) -> list[dict[str, object]]:
     """Name, size (bytes) and SHA-256 (FIPS 180-4, via :mod:`hashlib`) of each input file.
 
-    Files are read in 1 MiB blocks into one reused buffer, so large trajectories are not
+    Files are read in 16 MiB blocks into one reused buffer, so large trajectories are not
     held in memory; hashlib releases the GIL while it digests a block, so this can run in
     a background thread beside the frame loop (:func:`start_describing_files`).
 
@@ -340,7 +340,10 @@ def describe_files(
         If a file cannot be read (names the file).
     """
     records = []
-    buffer = bytearray(1 << 20)
+    # 16 MiB reads: the thread needs the GIL between reads, and a frame loop in the main
+    # thread holds it for milliseconds at a time (1 MiB reads made the hash of a 736 MiB
+    # file last ~4 s of wall time beside the loop instead of ~0.5 s)
+    buffer = bytearray(16 << 20)
     view = memoryview(buffer)
     for path in paths:
         path = Path(path)
@@ -384,7 +387,7 @@ class FileDescriptions:
 
     The SHA-256 of a large trajectory costs about as much CPU as a tenth of reading
     it with MDAnalysis; hashing while the frames are read hides that time on a machine
-    with a free core.  :meth:`cancel` stops the thread at the next 1 MiB block (used when
+    with a free core.  :meth:`cancel` stops the thread at the next 16 MiB block (used when
     the command fails).
     """
 

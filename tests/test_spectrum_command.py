@@ -315,3 +315,42 @@ def test_command_summaries_equal_the_modules():
             "--output", "o.nc", "--segment-ps", "2"]
     lazy, full = build_parser(argv).parse_args(argv), build_parser().parse_args(argv)
     assert vars(lazy) == vars(full)
+
+
+def test_threads_split_the_window_over_processes(single_job, oscillator_files, tmp_path, run_qcorr,
+                                                 monkeypatch):
+    # --threads T on a long window: T spawned worker processes compute sub-blocks that are
+    # joined like 'qcorr combine' joins blocks; the oracle is the one-process run.  The
+    # size threshold is lowered so that the small analytic scenario takes this path.
+    from qcorr.cli import spectrum_command
+
+    monkeypatch.setattr(spectrum_command, "PROCESS_MIN_ATOM_FRAMES", 0)
+    out = tmp_path / "threads.nc"
+    code, _, err = run_qcorr(*_args(oscillator_files, None, "--threads", "2", "--output", out))
+    assert code == 0, err
+    a, b = read_spectrum(single_job), read_spectrum(out)
+    assert b.attrs["worker_processes"] == 2 and a.attrs["worker_processes"] == 1
+    for name in a.data_vars:
+        if a[name].dtype.kind == "f":
+            xr.testing.assert_allclose(a[name], b[name], rtol=1e-12, atol=0)
+        else:
+            xr.testing.assert_equal(a[name], b[name])
+    for attr in ("frames_used", "statistics_frames", "block_index", "block_count", "input_files",
+                 "diagnostics"):
+        assert a.attrs[attr] == b.attrs[attr], attr
+    # block 2 of 3 by 2 processes (sub-blocks 3 and 4 of 6) equals block 2 of 3 by one process
+    one, two = tmp_path / "b2_one.nc", tmp_path / "b2_two.nc"
+    for path, threads in ((one, "1"), (two, "2")):
+        code, _, err = run_qcorr(*_args(oscillator_files, None, "--block", "2-of-3", "--threads", threads,
+                                        "--output", path))
+        assert code == 0, err
+    c, d = read_spectrum(one), read_spectrum(two)
+    assert d.attrs["worker_processes"] == 2 and d.attrs["block_index"] == 2 and d.attrs["block_count"] == 3
+    np.testing.assert_array_equal(c["segment"].values, d["segment"].values)
+    xr.testing.assert_allclose(c["vdos"], d["vdos"], rtol=1e-12, atol=0)
+    assert c.attrs["input_files"] == d.attrs["input_files"]  # the parent hashed part 2 of 3
+    # a bad input fails in the parent, before any worker starts: one line, no file
+    bad = tmp_path / "bad.nc"
+    code, _, err = run_qcorr(*_args(oscillator_files, None, "--threads", "2", "--group", "none=resname XYZ",
+                                    "--output", bad))
+    assert code != 0 and "XYZ" in err and not bad.exists()

@@ -104,7 +104,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                      help="compute only block I (1-based) of N contiguous frame blocks; "
                           "join the N block files with 'qcorr combine'")
     run.add_argument("--threads", type=int, default=1, metavar="N",
-                     help="threads for the Fourier transforms (count)")
+                     help="cores to use (count): a long frame window (at least 2e7 atom-frames) "
+                          "is split over N worker processes and joined as 'qcorr combine' "
+                          "joins blocks (equal to one process up to rounding)")
     run.add_argument("--progress", choices=("auto", "always", "never"), default="auto",
                      help="progress bar on stderr: auto = only on a terminal")
 
@@ -171,8 +173,43 @@ def check_output_writable(output: str) -> None:
         raise ConfigError(f"--output {output}: cannot write in '{parent}'; choose a writable directory")
 
 
+#: smallest frame-window work (massive atoms x frames read) split over worker processes;
+#: below it (about 2.5 s of reading), starting the processes costs more than it saves
+PROCESS_MIN_ATOM_FRAMES = 20_000_000
+
+
 def run(args: argparse.Namespace) -> int:
     """Run ``qcorr spectrum``; returns the exit status."""
+    finish(compute(args), args.output)
+    return 0
+
+
+#: sub-blocks per process when a job is split over processes (finer pieces balance the
+#: spawned workers' start-up against this process, which starts at once)
+SUB_BLOCKS_PER_PROCESS = 4
+
+
+def process_split(threads: int, n_segments: int, block_count: int, atom_frames: int) -> tuple[int, int]:
+    """(processes, sub-blocks) for one job; (1, 1) when *threads* < 2 or the work is small.
+
+    The job's frames are split like ``--block``: block I of N cut into S sub-blocks is
+    blocks (I-1)S+1 .. IS of NS (:func:`qcorr.spectrum.block_range` nests exactly), which
+    needs NS <= the window's *n_segments*.
+    """
+    if threads < 2 or atom_frames < PROCESS_MIN_ATOM_FRAMES:
+        return 1, 1
+    pieces = min(SUB_BLOCKS_PER_PROCESS * threads, n_segments // block_count)
+    processes = min(threads, pieces)
+    return (processes, pieces) if processes > 1 else (1, 1)
+
+
+def compute(args: argparse.Namespace, *, worker: bool = False):
+    """The spectrum dataset of ``qcorr spectrum`` (before diagnostics and writing).
+
+    With ``--threads T >= 2`` and a long enough frame window the job's segments are
+    split over T worker processes (:func:`_compute_in_processes`); *worker* marks such
+    a process (it neither splits again nor hashes the inputs).
+    """
     import MDAnalysis
 
     from qcorr import spectrum as est
@@ -223,6 +260,11 @@ def run(args: argparse.Namespace) -> int:
         count_stop = next_first * settings.hop_frames
     else:
         count_stop = stop_sample
+    processes, pieces = (1, 1) if worker else process_split(
+        args.threads, n_segments, block_count, len(channels.indices) * (stop_sample - first_sample))
+    if processes > 1:
+        return _compute_in_processes(args, processes, pieces, block_index, block_count,
+                                     (first_seg, stop_seg), opened.files)
 
     accumulator = est.SegmentAccumulator(
         settings, plan.weights, plan.group_members, plan.n_components, args.threads,
@@ -243,7 +285,7 @@ def run(args: argparse.Namespace) -> int:
     stats = trj.FrameStatistics()
     # the inputs' SHA-256 is computed in a background thread while the frames are read;
     # block I of N hashes the I-th of N byte ranges of each file (qcorr combine joins them)
-    hashing = trj.start_describing_files(opened.files, block_index, block_count)
+    hashing = None if worker else trj.start_describing_files(opened.files, block_index, block_count)
     try:
         for sample, velocities in enumerate(trj.stream_velocities(
             opened, channels, window, read_from, stop_sample,
@@ -256,9 +298,10 @@ def run(args: argparse.Namespace) -> int:
                 molecular.add_frame(velocities, opened.universe.trajectory.ts, sample=sample,
                                     finite_difference_timestep_ps=fd_step)
         powers = accumulator.result()
-        input_files = hashing.result()
+        input_files = [] if hashing is None else hashing.result()
     except BaseException:
-        hashing.cancel()
+        if hashing is not None:
+            hashing.cancel()
         raise
 
     raw = raw_spectra(powers.power, powers.frequency_Hz, args.temperature,
@@ -301,6 +344,7 @@ def run(args: argparse.Namespace) -> int:
         "mean_box_volume_A3": stats.box_volume_sum_A3 / stats.frames if stats.frames else 0.0,
         "block_index": block_index + 1,
         "block_count": block_count,
+        "worker_processes": 1,
         "segment_count_window": n_segments,
         "statistics_frames": stats.frames,
         "centre_of_mass_mv2_u_A2_per_ps2": stats.com_kinetic_sum / stats.frames if stats.frames else 0.0,
@@ -317,8 +361,109 @@ def run(args: argparse.Namespace) -> int:
     )
     if molecular is not None:
         ds = molecular.add_variables(ds, finite_difference_timestep_ps=fd_step)
-    finish(ds, args.output)
-    return 0
+    return ds
+
+
+def _compute_in_processes(args: argparse.Namespace, processes: int, pieces: int, block_index: int,
+                          block_count: int, segment_range: tuple[int, int], files):
+    """Block *block_index* of *block_count* computed in *pieces* sub-blocks by *processes* processes.
+
+    Sub-block k is frame block ``block_index * pieces + k + 1`` of ``block_count *
+    pieces``; together they make up exactly this job's block (see
+    :func:`qcorr.spectrum.block_range`), and they are joined as ``qcorr combine`` joins
+    blocks (:func:`qcorr.spectrum_file.join_blocks`): equal to one process up to
+    floating-point rounding.  This process and ``processes - 1`` spawned workers take
+    the next sub-block from a shared counter whenever they are free, so this process
+    (imports and trajectory ready) starts at once and the workers join as soon as they
+    have started; the first error stops everyone taking more.  This process also
+    computes the inputs' SHA-256 in a thread.
+
+    Workers are spawned, not forked (a fork of a threaded process may hang), so a
+    Python script that calls :func:`qcorr.cli.main` must do so under
+    ``if __name__ == "__main__":`` (Python's rule for spawned processes, which import
+    the main script again).  Progress bars are not shown while the work is split.
+    """
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+    from concurrent.futures.process import BrokenProcessPool
+
+    from qcorr import trajectory as trj
+    from qcorr.spectrum_file import join_blocks
+
+    total = block_count * pieces
+    jobs = []
+    for k in range(pieces):
+        options = {key: value for key, value in vars(args).items() if not callable(value)}
+        options.update(block=f"{block_index * pieces + k + 1}-of-{total}", threads=1,
+                       progress="never")
+        jobs.append(options)
+    hashing = trj.start_describing_files(files, block_index, block_count)
+    parts: list = [None] * pieces
+    context = multiprocessing.get_context("spawn")
+    counter = context.Value("i", 0)
+    pool = ProcessPoolExecutor(processes - 1, mp_context=context, initializer=_share_counter,
+                               initargs=(counter,))
+    try:
+        futures = [pool.submit(_take_sub_blocks, jobs) for _ in range(processes - 1)]
+        _share_counter(counter)
+        done = _take_sub_blocks(jobs)
+        for future in futures:
+            done += future.result()
+        for k, part in done:
+            parts[k] = part
+        input_files = hashing.result()
+    except BrokenProcessPool:
+        hashing.cancel()
+        raise ConfigError(
+            f"--threads {args.threads}: a worker process stopped before it finished (out of memory, "
+            "or qcorr was called from a Python script without an 'if __name__ == \"__main__\":' "
+            "guard, which spawned workers need); use --threads 1 or fix that"
+        ) from None
+    except BaseException:
+        hashing.cancel()
+        raise
+    finally:
+        # the workers have returned everything (or failed); do not wait for their exit
+        pool.shutdown(wait=False, cancel_futures=True)
+    names = [f"sub-block {k + 1} of {pieces}" for k in range(pieces)]
+    ds = join_blocks(parts, names, getattr(args, "command_line", "qcorr spectrum"), segment_range,
+                     block_index + 1, block_count)
+    ds.attrs["input_files"] = json.dumps(input_files)
+    ds.attrs["worker_processes"] = processes
+    return ds
+
+
+#: the shared sub-block counter of :func:`_compute_in_processes` (set in every process)
+_SUB_BLOCK_COUNTER = None
+
+
+def _share_counter(counter) -> None:
+    global _SUB_BLOCK_COUNTER
+    _SUB_BLOCK_COUNTER = counter
+
+
+def _take_sub_blocks(jobs: list[dict]) -> list:
+    """Compute the next untaken sub-block until none is left; [(index, dataset), ...]."""
+    counter, done = _SUB_BLOCK_COUNTER, []
+    while True:
+        with counter.get_lock():
+            k = counter.value
+            counter.value += 1
+        if k >= len(jobs):
+            return done
+        try:
+            done.append((k, _compute_sub_block(jobs[k])))
+        except BaseException:
+            with counter.get_lock():
+                counter.value = len(jobs)  # nobody takes another one
+            raise
+
+
+def _compute_sub_block(options: dict):
+    """One sub-block of :func:`_compute_in_processes` (its warnings were already given)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", QcorrWarning)
+        return compute(argparse.Namespace(**options), worker=True)
 
 
 def finish(ds, output: str) -> None:
