@@ -354,3 +354,22 @@ def test_threads_split_the_window_over_processes(single_job, oscillator_files, t
     code, _, err = run_qcorr(*_args(oscillator_files, None, "--threads", "2", "--group", "none=resname XYZ",
                                     "--output", bad))
     assert code != 0 and "XYZ" in err and not bad.exists()
+
+
+def test_threads_report_a_bad_frame_found_by_any_process(oscillator_scenario, oscillator_files, tmp_path,
+                                                         run_qcorr, monkeypatch):
+    # a NaN velocity at frame 900 lies in the last sub-block: whichever process meets it,
+    # the command prints the one line naming the frame and atom and writes nothing
+    from qcorr.cli import spectrum_command
+
+    monkeypatch.setattr(spectrum_command, "PROCESS_MIN_ATOM_FRAMES", 0)
+    velocities = oscillator_scenario.velocities.copy()
+    velocities[900, 5, 0] = np.nan
+    trr = synthetic.write_trr(dataclasses.replace(oscillator_scenario, velocities=velocities),
+                              tmp_path / "late_nan.trr")
+    out = tmp_path / "late_nan.nc"
+    code, _, err = run_qcorr(*_args(oscillator_files, trr, "--threads", "2", "--output", out))
+    errors = [line for line in err.splitlines() if line.startswith("qcorr: error:")]
+    assert code != 0 and len(errors) == 1, err
+    assert "frame 900" in errors[0] and "late_nan.trr" in errors[0] and "atom index 5" in errors[0]
+    assert not out.exists()
