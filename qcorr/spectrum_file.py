@@ -521,7 +521,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
         segments (names the block file and the item).
     """
     count = _check_blocks(datasets, names)
-    datasets, names = _in_block_order(datasets, names, range(1, count + 1))
+    datasets, names = _in_block_order(datasets, names, count)
     input_files = combine_file_records([json_attribute(ds, "input_files") for ds in datasets], names)
     n_window = int(datasets[0].attrs["segment_count_window"])
     joined = join_blocks(datasets, names, command_line, (0, n_window), 1, 1)
@@ -553,16 +553,16 @@ def _check_blocks(datasets: list[xr.Dataset], names: list[str]) -> int:
     return int(datasets[0].attrs["block_count"])
 
 
-def _in_block_order(datasets: list[xr.Dataset], names: list[str], expected: range):
-    """*datasets* and *names* sorted by block index; the indices must be exactly *expected*."""
-    count = int(datasets[0].attrs["block_count"])
+def _in_block_order(datasets: list[xr.Dataset], names: list[str], count: int):
+    """*datasets* and *names* sorted by block index; the indices must be exactly 1..*count*."""
+    expected = range(1, count + 1)
     indices = [int(ds.attrs["block_index"]) for ds in datasets]
     if sorted(indices) != list(expected):
         missing = sorted(set(expected) - set(indices))
         repeated = sorted({i for i in indices if indices.count(i) > 1})
         raise SpectrumFileError(
             f"the blocks given are {sorted(indices)} of {count}: missing {missing}, repeated "
-            f"{repeated}; give each block {expected.start}..{expected.stop - 1} exactly once"
+            f"{repeated}; give each block 1..{count} exactly once"
         )
     order = np.argsort(indices)
     return [datasets[i] for i in order], [names[i] for i in order]

@@ -176,17 +176,16 @@ def check_output_writable(output: str) -> None:
 #: smallest frame-window work (massive atoms x frames read) split over worker processes;
 #: below it (about 2.5 s of reading), starting the processes costs more than it saves
 PROCESS_MIN_ATOM_FRAMES = 20_000_000
+#: sub-blocks per process when a job is split over processes (finer pieces balance the
+#: spawned workers' start-up against this process, which starts at once)
+SUB_BLOCKS_PER_PROCESS = 4
+
 
 
 def run(args: argparse.Namespace) -> int:
     """Run ``qcorr spectrum``; returns the exit status."""
     finish(compute(args), args.output)
     return 0
-
-
-#: sub-blocks per process when a job is split over processes (finer pieces balance the
-#: spawned workers' start-up against this process, which starts at once)
-SUB_BLOCKS_PER_PROCESS = 4
 
 
 def process_split(threads: int, n_segments: int, block_count: int, atom_frames: int) -> tuple[int, int]:
