@@ -181,7 +181,6 @@ PROCESS_MIN_ATOM_FRAMES = 20_000_000
 SUB_BLOCKS_PER_PROCESS = 4
 
 
-
 def run(args: argparse.Namespace) -> int:
     """Run ``qcorr spectrum``; returns the exit status."""
     finish(compute(args), args.output)
