@@ -5,7 +5,7 @@ atom count, written into a temporary directory, this script measures
 
 * the bare MDAnalysis read: open the trajectory, loop over all frames, take the
   velocities of all atoms (what any velocity analysis must at least do);
-* the ``SegmentAccumulator`` of :mod:`qcorr.spectrum` fed from that same loop
+* the ``SegmentAccumulator`` of :mod:`qcorr.spectra.estimator` fed from that same loop
   (the library cost without file output);
 * the full ``qcorr spectrum`` command, run in-process through
   :func:`qcorr.cli.main` (reading, spectra, diagnostics, NetCDF output);
@@ -193,7 +193,7 @@ def measure_read(top: str, traj: str) -> dict:
 def measure_library(top: str, traj: str) -> dict:
     import MDAnalysis as mda
 
-    from qcorr.spectrum import SegmentAccumulator, SpectrumSettings, segment_frames_for
+    from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings, segment_frames_for
 
     clock = Clock()
     u = mda.Universe(top, traj)
@@ -223,10 +223,10 @@ def import_everything() -> None:
     import qcorr.cli
     import qcorr.cli.combine_command
     import qcorr.cli.spectrum_command
-    import qcorr.diagnostics
-    import qcorr.spectrum
-    import qcorr.spectrum_file
-    import qcorr.trajectory
+    import qcorr.reading.trajectory
+    import qcorr.spectra.diagnostics
+    import qcorr.spectra.estimator
+    import qcorr.spectra.spectrum_file
 
     qcorr.cli.build_parser()
 
@@ -791,7 +791,7 @@ def main(argv: list[str] | None = None) -> int:
             " `atoms.velocities`: the least any velocity analysis must do."
         ),
         (
-            "- **library**: the same loop feeding `qcorr.spectrum.SegmentAccumulator` (one group,"
+            "- **library**: the same loop feeding `qcorr.spectra.estimator.SegmentAccumulator` (one group,"
             " centre-of-mass velocity removed per frame), no output file."
         ),
         (

@@ -6,7 +6,7 @@ temporary directory as a GROMACS TRR file with velocities, then times in
 separate subprocesses:
 
 * ``read``        : ``for ts in u.trajectory: u.atoms.velocities`` (the floor);
-* ``accumulate``  : the same loop feeding :class:`qcorr.spectrum.SegmentAccumulator`;
+* ``accumulate``  : the same loop feeding :class:`qcorr.spectra.estimator.SegmentAccumulator`;
 * ``read_timestep``: the same with ``ts.velocities`` (no per-frame copy);
 * ``command_loop``: the per-frame work of ``qcorr spectrum`` (its trajectory stream,
   centre-of-mass removal and checks, feeding the accumulator), timed like ``read``;
@@ -101,13 +101,13 @@ def child(mode: str, pdb: str, trr: str, repeats: int, segment_frames: int, work
     """
     import MDAnalysis as mda
 
-    from qcorr.spectrum import SegmentAccumulator, SpectrumSettings
+    from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
 
     u = mda.Universe(pdb, [trr] * repeats) if repeats > 1 else mda.Universe(pdb, trr)
     atoms = u.atoms
     n_frames = len(u.trajectory)
     if mode == "command_loop":
-        from qcorr import trajectory as trj
+        from qcorr.reading import trajectory as trj
 
         opened = trj.open_trajectory(pdb, [trr] * repeats)
         channels = trj.massive_atoms(opened.universe)

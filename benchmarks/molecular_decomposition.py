@@ -1,4 +1,4 @@
-"""Cost of the molecular decomposition (qcorr.molecular) per frame, relative to the atomic
+"""Cost of the molecular decomposition (qcorr.spectra.molecular) per frame, relative to the atomic
 spectrum estimator on the same frames.  Prints ratios; not a test (no timed assertions).
 
 Scenario of our own making: N rigid three-site molecules (water-like masses and geometry)
@@ -15,8 +15,8 @@ import time
 import numpy as np
 from scipy.spatial.transform import Rotation
 
-from qcorr.molecular import MolecularDecomposer, build_layout
-from qcorr.spectrum import SegmentAccumulator, SpectrumSettings
+from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
+from qcorr.spectra.molecular import MolecularDecomposer, build_layout
 
 
 def main(n_mol: int = 5000, n_frames: int = 200) -> None:

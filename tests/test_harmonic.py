@@ -1,4 +1,4 @@
-"""Tests of the spectrum integrals (qcorr.harmonic) against outside results.
+"""Tests of the spectrum integrals (qcorr.thermo.harmonic) against outside results.
 
 Sources of expected values (named again beside each check):
 
@@ -33,9 +33,9 @@ from hypothesis import strategies as st
 from scipy import constants as sc
 from scipy.integrate import quad
 
-from qcorr import harmonic
 from qcorr.errors import ConfigError, SpectrumFileError
-from qcorr.weights import PROPERTIES
+from qcorr.thermo import harmonic
+from qcorr.thermo.weights import PROPERTIES
 
 R = sc.R  # CODATA via scipy, J/(mol K)
 RATIOS = [0.1, 0.25, 0.5, 1.0, 2.0]  # T / theta

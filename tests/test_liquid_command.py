@@ -480,7 +480,7 @@ def test_viscosity_adds_the_yeh_hummer_correction(tmp_path, run_qcorr):
 
 def test_vibration_spectrum_choice(tmp_path, run_qcorr):
     # Flexible molecules: the residual-velocity spectrum (default) or the difference
-    # spectrum (which dips below zero near zero frequency, qcorr.molecular) feeds the
+    # spectrum (which dips below zero near zero frequency, qcorr.spectra.molecular) feeds the
     # vibrational part; each row must equal the harmonic entropy of the chosen spectrum
     # (quantum oscillator weights, Berens et al. 1983), computed here independently by
     # quadrature of W_S(u) = u/(e^u - 1) - ln(1 - e^-u).

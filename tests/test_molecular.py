@@ -1,4 +1,4 @@
-"""Tests of qcorr.molecular: rigid-body kinematics (Goldstein, Classical
+"""Tests of qcorr.spectra.molecular: rigid-body kinematics (Goldstein, Classical
 Mechanics, 3rd ed., Ch. 4-5) on synthetic molecules whose answer is exact."""
 
 from __future__ import annotations
@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-from qcorr import molecular as mo
 from qcorr.errors import ConfigError, TrajectoryError
-from qcorr.spectrum import SegmentAccumulator, SpectrumSettings
+from qcorr.spectra import molecular as mo
+from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
 
 RNG_SEED = 20261202
 
@@ -344,7 +344,7 @@ def test_spectrum_command_molecular_on_antiphase_diatomics(oscillator_files, tmp
         assert rot[g] + vib[g] == pytest.approx(total[g], rel=1e-9)
         assert rot[g] > 0 and vib[g] > 0
         # residual-velocity spectrum: same integral as the difference (exact kinetic-energy
-        # split, see qcorr.molecular), and a power spectrum, so never negative
+        # split, see qcorr.spectra.molecular), and a power spectrum, so never negative
         assert res[g] == pytest.approx(vib[g], rel=1e-9)
     assert np.all(residual >= 0)
     # velocities from positions (forward differences; molecule positions at the interval
@@ -406,7 +406,7 @@ def test_molecular_frame_blocks_combine_to_the_single_job(tmp_path, run_qcorr, s
 
     import pandas as pd
 
-    from qcorr.spectrum_file import read_spectrum
+    from qcorr.spectra.spectrum_file import read_spectrum
 
     demo = pathlib.Path(__file__).resolve().parents[1] / "resources" / "demo" / "water_flexible_298K"
     base = ["spectrum", "--topology", demo / "topology.pdb", "--trajectory", demo / "trajectory.trr",

@@ -1,4 +1,4 @@
-"""Tests of qcorr.plotting and the ``qcorr plot`` command.
+"""Tests of qcorr.outputs.figures and the ``qcorr plot`` command.
 
 Oracles
 -------
@@ -28,10 +28,10 @@ import xarray as xr
 from scipy import constants
 from scipy.integrate import quad
 
-from qcorr import plotting
 from qcorr.cli import main
 from qcorr.errors import ConfigError
-from qcorr.spectrum_file import write_spectrum
+from qcorr.outputs import figures as plotting
+from qcorr.spectra.spectrum_file import write_spectrum
 
 R = constants.R  # J/(mol K), CODATA via scipy
 C2 = constants.h * constants.c * 100 / constants.k  # second radiation constant, cm K
@@ -263,7 +263,7 @@ def test_right_edge_equals_the_property_table(spectrum_file, tmp_path):
     the output of 'qcorr properties' on the same file)."""
     import pandas as pd
 
-    from qcorr.spectrum_file import read_spectrum
+    from qcorr.spectra.spectrum_file import read_spectrum
 
     table_path = tmp_path / "table.csv"
     assert main(["properties", str(spectrum_file), "--output", str(table_path), "--quiet"]) == 0

@@ -267,7 +267,7 @@ def test_end_to_end_from_trajectory(oscillator_files, tmp_path, run_qcorr) -> No
     transform: amplitudes 1/2, -1/4, -1/4; F. J. Harris, Proc. IEEE 66, 51 (1978)).
     The 21 dof (3N - 3, N = 8) are shared equally by the 4 frequencies, so every
     property is (21/4) sum_i [4 W(u_m) + W(u_m-1) + W(u_m+1)] / 6 in units of k or
-    kT, computed here with the textbook oscillator formulas (not qcorr.weights).
+    kT, computed here with the textbook oscillator formulas (not qcorr.thermo.weights).
     ZPE, linear in frequency, sees no leakage at all: (21/4) sum_i h nu_i / 2.
     """
     from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K

@@ -20,7 +20,7 @@ import xarray as xr
 from conftest import OSC_BINS, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K
 from scipy import constants as sc
 
-from qcorr.spectrum_file import read_spectrum
+from qcorr.spectra.spectrum_file import read_spectrum
 
 
 def _args(files, trajectory=None, *extra):
@@ -287,8 +287,8 @@ def test_help_imports_only_the_command_asked_for():
         "        main(argv)\n"
         "    except SystemExit:\n"
         "        pass\n"
-        "heavy = [m for m in ('xarray', 'pandas', 'MDAnalysis', 'scipy.optimize', 'qcorr.twophase',\n"
-        "                     'qcorr.harmonic') if m in sys.modules]\n"
+        "heavy = [m for m in ('xarray', 'pandas', 'MDAnalysis', 'scipy.optimize', 'qcorr.thermo.twophase',\n"
+        "                     'qcorr.thermo.harmonic') if m in sys.modules]\n"
         "print('HEAVY', heavy)\n"
     )
     done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True)

@@ -1,9 +1,9 @@
-"""Tests of the streaming spectrum estimator (qcorr.spectrum) against outside oracles.
+"""Tests of the streaming spectrum estimator (qcorr.spectra.estimator) against outside oracles.
 
 Oracles used here:
 
 * Parseval's theorem and the definition of the DFT (direct O(L^2) sums written
-  in this file, independent of the FFT route in qcorr.spectrum);
+  in this file, independent of the FFT route in qcorr.spectra.estimator);
 * scipy.signal.welch (an independent implementation of Welch's method,
   P. D. Welch, IEEE Trans. Audio Electroacoust. 15, 70 (1967));
 * harmonic oscillators with exactly known frequencies and amplitudes;
@@ -34,7 +34,7 @@ from hypothesis import settings as hyp_settings
 from hypothesis import strategies as st
 
 from qcorr.errors import ConfigError, QcorrError, SamplingError, TrajectoryError
-from qcorr.spectrum import (
+from qcorr.spectra.estimator import (
     SegmentAccumulator,
     SpectrumSettings,
     block_range,
@@ -551,9 +551,9 @@ def test_docstring_examples():
     # and the equipartition sum rule).
     import doctest
 
-    import qcorr.spectrum
+    import qcorr.spectra.estimator
 
-    outcome = doctest.testmod(qcorr.spectrum, optionflags=doctest.ELLIPSIS)
+    outcome = doctest.testmod(qcorr.spectra.estimator, optionflags=doctest.ELLIPSIS)
     assert outcome.attempted >= 4 and outcome.failed == 0
 
 

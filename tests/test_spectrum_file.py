@@ -14,7 +14,7 @@ import pytest
 import xarray as xr
 
 from qcorr.errors import SpectrumFileError
-from qcorr.spectrum_file import (
+from qcorr.spectra.spectrum_file import (
     REQUIRED_ATTRIBUTES,
     REQUIRED_VARIABLES,
     read_spectrum,
@@ -124,8 +124,13 @@ def test_incomplete_dataset_never_written(tmp_path):
 # --------------------------------------------------------------------------- assembling and diagnostics
 from types import SimpleNamespace
 
-from qcorr import diagnostics
-from qcorr.spectrum_file import assemble_spectrum, combine_blocks, group_table, raw_segments_of
+from qcorr.spectra import diagnostics
+from qcorr.spectra.spectrum_file import (
+    assemble_spectrum,
+    combine_blocks,
+    group_table,
+    raw_segments_of,
+)
 
 
 def _assembled(raw_scale=1.0, n_segments=6, shape="line", com_mv2=0.0, temperature=300.0, first_segment=0,
@@ -219,7 +224,7 @@ def test_combine_blocks_rebuilds_the_whole():
 
 
 def test_file_records_of_blocks_must_cover_each_file_once():
-    from qcorr.spectrum_file import combine_file_records
+    from qcorr.spectra.spectrum_file import combine_file_records
 
     def block(first, stop, size=10, name="run.trr"):
         return [{"name": name, "size_bytes": size,

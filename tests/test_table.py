@@ -1,4 +1,4 @@
-"""Tests of the property table (qcorr.table): CSV + JSON sidecar, atomic writing, merging.
+"""Tests of the property table (qcorr.outputs.table): CSV + JSON sidecar, atomic writing, merging.
 
 Expected values here are the inputs themselves (round trips) and SHA-256 digests
 computed independently with hashlib (FIPS 180-4).
@@ -13,8 +13,8 @@ import math
 import pandas as pd
 import pytest
 
-from qcorr import table
 from qcorr.errors import ConfigError
+from qcorr.outputs import table
 
 
 def _rows(system: str = "a") -> list[table.TableRow]:

@@ -1,4 +1,4 @@
-"""Library tests of qcorr.trajectory: options, masses and virtual sites, groups, degrees of freedom, time axis."""
+"""Library tests of qcorr.reading.trajectory: options, masses and virtual sites, groups, degrees of freedom, time axis."""
 
 from __future__ import annotations
 
@@ -10,8 +10,8 @@ import pytest
 import synthetic
 from scipy import constants as sc
 
-from qcorr import trajectory as trj
 from qcorr.errors import ConfigError, SamplingError, TrajectoryError
+from qcorr.reading import trajectory as trj
 
 
 def _water_like(masses, names, types=None, resids=None):

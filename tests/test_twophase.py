@@ -1,4 +1,4 @@
-"""Tests of qcorr.twophase against outside sources (named beside each check)."""
+"""Tests of qcorr.thermo.twophase against outside sources (named beside each check)."""
 
 from __future__ import annotations
 
@@ -12,8 +12,8 @@ from hypothesis import strategies as st
 from scipy import constants as sc
 from scipy.integrate import quad
 
-from qcorr import twophase as tp
 from qcorr.errors import ConfigError, PhysicsError
+from qcorr.thermo import twophase as tp
 
 R = sc.R
 T298 = 298.15

@@ -1,4 +1,4 @@
-"""Tests of the harmonic weighting functions (qcorr.weights).
+"""Tests of the harmonic weighting functions (qcorr.thermo.weights).
 
 Outside sources of the expected values:
 
@@ -18,8 +18,8 @@ import mpmath as mp
 import numpy as np
 import pytest
 
-from qcorr import weights as w
 from qcorr.errors import ConfigError, QcorrError
+from qcorr.thermo import weights as w
 
 mp.mp.dps = 40
 
@@ -218,7 +218,7 @@ def test_registry_and_unknown_property_message() -> None:
 
 
 def test_docstring_examples() -> None:
-    """The Examples in qcorr.weights run and print the values checked against mpmath above."""
+    """The Examples in qcorr.thermo.weights run and print the values checked against mpmath above."""
     import doctest
 
     result = doctest.testmod(w)

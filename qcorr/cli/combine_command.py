@@ -28,7 +28,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from qcorr.cli.spectrum_command import finish
-    from qcorr.spectrum_file import combine_blocks, read_spectrum
+    from qcorr.spectra.spectrum_file import combine_blocks, read_spectrum
 
     out = Path(args.output).resolve()
     for name in args.blocks:

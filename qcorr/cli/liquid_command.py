@@ -1,7 +1,7 @@
 """``qcorr liquid``: absolute entropy, free energy, energy and heat capacity of liquids (2PT).
 
 Parsing, reading the spectrum file and writing the table only; the physics is
-in :mod:`qcorr.twophase`, the table layout in :mod:`qcorr.table`.
+in :mod:`qcorr.thermo.twophase`, the table layout in :mod:`qcorr.outputs.table`.
 """
 
 from __future__ import annotations
@@ -17,10 +17,11 @@ from pathlib import Path
 import numpy as np
 
 from qcorr import constants as C
-from qcorr import table, twophase
 from qcorr.errors import ConfigError, PhysicsError, QcorrWarning, SpectrumFileError
-from qcorr.harmonic import segment_effective_count, segment_standard_error
-from qcorr.spectrum_file import group_names, read_spectrum
+from qcorr.outputs import table
+from qcorr.spectra.spectrum_file import group_names, read_spectrum
+from qcorr.thermo import twophase
+from qcorr.thermo.harmonic import segment_effective_count, segment_standard_error
 
 NAME = "liquid"
 HELP = "absolute entropy, free energy, energy, heat capacity of liquids by the two-phase model (2PT)"
@@ -232,7 +233,7 @@ def _segments_rescaled(gin: GroupInput, wavenumber: np.ndarray) -> GroupInput:
     The averaged spectrum is normalised to the degrees of freedom as a whole (a ratio of
     power to total power); evaluating 2PT on segments scaled the same way makes their
     scatter include the fluctuation of that normalisation (delta-method variance of a
-    ratio estimator), as :func:`qcorr.harmonic.normalised_segments` does for the harmonic
+    ratio estimator), as :func:`qcorr.thermo.harmonic.normalised_segments` does for the harmonic
     table.  The component split inside a segment is left as measured.
     """
     names = list(gin.part_segments)

@@ -1,13 +1,13 @@
 """``qcorr merge``: concatenate property tables of many systems into one table.
 
-Parsing and dispatch only; the work is in :func:`qcorr.table.merge_tables`.
+Parsing and dispatch only; the work is in :func:`qcorr.outputs.table.merge_tables`.
 """
 
 from __future__ import annotations
 
 import argparse
 
-from qcorr import table
+from qcorr.outputs import table
 
 NAME = "merge"
 HELP = "concatenate property tables (CSV + JSON sidecar) of many systems into one"

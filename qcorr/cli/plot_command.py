@@ -1,4 +1,4 @@
-"""``qcorr plot``: figures of a spectrum file (parsing only; drawing in :mod:`qcorr.plotting`)."""
+"""``qcorr plot``: figures of a spectrum file (parsing only; drawing in :mod:`qcorr.outputs.figures`)."""
 
 from __future__ import annotations
 
@@ -50,8 +50,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from qcorr import plotting
-    from qcorr.spectrum_file import read_spectrum
+    from qcorr.outputs import figures as plotting
+    from qcorr.spectra.spectrum_file import read_spectrum
 
     if not args.spectrum_figure and not args.cumulative_figure:
         raise ConfigError(

@@ -1,7 +1,7 @@
 """``qcorr properties``: harmonic quantum corrections and properties from a spectrum file.
 
-Parsing and dispatch only; the physics is in :mod:`qcorr.harmonic`, the table
-in :mod:`qcorr.table`.
+Parsing and dispatch only; the physics is in :mod:`qcorr.thermo.harmonic`, the table
+in :mod:`qcorr.outputs.table`.
 """
 
 from __future__ import annotations
@@ -12,10 +12,11 @@ import math
 import warnings
 from pathlib import Path
 
-from qcorr import harmonic, table
 from qcorr.errors import ConfigError, QcorrWarning
-from qcorr.spectrum_file import read_spectrum
-from qcorr.weights import PROPERTIES, get_property
+from qcorr.outputs import table
+from qcorr.spectra.spectrum_file import read_spectrum
+from qcorr.thermo import harmonic
+from qcorr.thermo.weights import PROPERTIES, get_property
 
 NAME = "properties"
 HELP = "harmonic quantum corrections (heat capacity, ZPE, energy, entropy, free energy) from a spectrum"

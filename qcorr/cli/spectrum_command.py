@@ -1,8 +1,8 @@
 """``qcorr spectrum``: topology + trajectory -> spectrum file (VDOS per group, VACF, diagnostics).
 
-Parsing and plumbing only: reading is :mod:`qcorr.trajectory`, the estimator
-:mod:`qcorr.spectrum`, normalisation and layout :mod:`qcorr.spectrum_file`,
-checks :mod:`qcorr.diagnostics`.
+Parsing and plumbing only: reading is :mod:`qcorr.reading.trajectory`, the estimator
+:mod:`qcorr.spectra.estimator`, normalisation and layout :mod:`qcorr.spectra.spectrum_file`,
+checks :mod:`qcorr.spectra.diagnostics`.
 """
 
 from __future__ import annotations
@@ -191,7 +191,7 @@ def process_split(threads: int, n_segments: int, block_count: int, atom_frames: 
     """(processes, sub-blocks) for one job; (1, 1) when *threads* < 2 or the work is small.
 
     The job's frames are split like ``--block``: block I of N cut into S sub-blocks is
-    blocks (I-1)S+1 .. IS of NS (:func:`qcorr.spectrum.block_range` nests exactly), which
+    blocks (I-1)S+1 .. IS of NS (:func:`qcorr.spectra.estimator.block_range` nests exactly), which
     needs NS <= the window's *n_segments*.
     """
     if threads < 2 or atom_frames < PROCESS_MIN_ATOM_FRAMES:
@@ -210,10 +210,10 @@ def compute(args: argparse.Namespace, *, worker: bool = False):
     """
     import MDAnalysis
 
-    from qcorr import spectrum as est
-    from qcorr import trajectory as trj
     from qcorr.constants import speed_of_light_cm_per_s
-    from qcorr.spectrum_file import assemble_spectrum, group_table, raw_spectra
+    from qcorr.reading import trajectory as trj
+    from qcorr.spectra import estimator as est
+    from qcorr.spectra.spectrum_file import assemble_spectrum, group_table, raw_spectra
 
     _check_arguments(args)
     block_index, block_count = parse_block(args.block)
@@ -268,13 +268,13 @@ def compute(args: argparse.Namespace, *, worker: bool = False):
         settings, plan.weights, plan.group_members, plan.n_components, args.threads,
         first_segment=first_seg, stop_segment=stop_seg,
     )
-    # --molecular (issue 6): a second estimator over molecular channels, see qcorr.molecular
-    from qcorr.molecular import pass_for_spectrum_command
+    # --molecular (issue 6): a second estimator over molecular channels, see qcorr.spectra.molecular
+    from qcorr.spectra.molecular import pass_for_spectrum_command
     fd_step = window.timestep_ps if positions else None
     molecular = pass_for_spectrum_command(args, opened, channels, groups, settings, window,
                                           first_seg, stop_seg, first_sample, count_stop)
     # a frame block of a molecular run reads up to one longest MSD lag before its first
-    # segment, for the earlier members of its displacement pairs (qcorr.molecular_file)
+    # segment, for the earlier members of its displacement pairs (qcorr.spectra.molecular_file)
     read_from = first_sample if molecular is None else max(0, first_sample - molecular.lookback_frames)
     # stored velocities stay in the reader's single precision through the atomic estimator
     # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
@@ -368,8 +368,8 @@ def _compute_in_processes(args: argparse.Namespace, processes: int, pieces: int,
 
     Sub-block k is frame block ``block_index * pieces + k + 1`` of ``block_count *
     pieces``; together they make up exactly this job's block (see
-    :func:`qcorr.spectrum.block_range`), and they are joined as ``qcorr combine`` joins
-    blocks (:func:`qcorr.spectrum_file.join_blocks`): equal to one process up to
+    :func:`qcorr.spectra.estimator.block_range`), and they are joined as ``qcorr combine`` joins
+    blocks (:func:`qcorr.spectra.spectrum_file.join_blocks`): equal to one process up to
     floating-point rounding.  This process and ``processes - 1`` spawned workers take
     the next sub-block from a shared counter whenever they are free, so this process
     (imports and trajectory ready) starts at once and the workers join as soon as they
@@ -385,8 +385,8 @@ def _compute_in_processes(args: argparse.Namespace, processes: int, pieces: int,
     from concurrent.futures import ProcessPoolExecutor
     from concurrent.futures.process import BrokenProcessPool
 
-    from qcorr import trajectory as trj
-    from qcorr.spectrum_file import join_blocks
+    from qcorr.reading import trajectory as trj
+    from qcorr.spectra.spectrum_file import join_blocks
 
     total = block_count * pieces
     jobs = []
@@ -466,8 +466,8 @@ def _compute_sub_block(options: dict):
 
 def finish(ds, output: str) -> None:
     """Run the diagnostics, print them, store them, write the file (shared with ``combine``)."""
-    from qcorr import diagnostics as diag
-    from qcorr.spectrum_file import write_spectrum
+    from qcorr.spectra import diagnostics as diag
+    from qcorr.spectra.spectrum_file import write_spectrum
 
     checks = diag.run_diagnostics(ds)
     ds.attrs["diagnostics"] = diag.to_json(checks)

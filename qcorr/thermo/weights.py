@@ -44,7 +44,7 @@ compare against 40-digit mpmath on u in [1e-8, 1e3]):
 
 At u = 0 exactly: W^q_E = W^q_Cv = 1, every correction is 0, and the
 absolute entropy and free-energy weights are infinite (log-singular); the
-integrals in :mod:`qcorr.harmonic` never evaluate them there.
+integrals in :mod:`qcorr.thermo.harmonic` never evaluate them there.
 
 Cautions: these are harmonic weights.  Applied to a classical MD spectrum they
 treat every spectral component as an independent harmonic mode; anharmonic,

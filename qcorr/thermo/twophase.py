@@ -61,8 +61,8 @@ from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import brentq
 
 from qcorr import constants as C
-from qcorr import weights
 from qcorr.errors import ConfigError, PhysicsError
+from qcorr.thermo import weights
 
 HARD_SPHERE_FORMS = ("published", "constant-volume")
 GAS_VOLUME_CHOICES = ("gas-particles", "all-particles")
@@ -92,7 +92,7 @@ __all__ = [
 
 
 def _weights(u: NDArray[np.float64], kind: str) -> dict[str, NDArray[np.float64]]:
-    """Per-mode weights (Berens et al. [4]_, from :mod:`qcorr.weights`); u > 0.
+    """Per-mode weights (Berens et al. [4]_, from :mod:`qcorr.thermo.weights`); u > 0.
 
     Entropy in k, energy in kT (zero-point energy included), heat capacity in k.
     """

@@ -2,7 +2,7 @@
 
 ``qcorr spectrum --molecular`` adds translation, rotation and vibration spectra,
 principal moments and the centre-of-mass mean-square displacement to the atomic
-spectrum file (see :mod:`qcorr.molecular` for the kinematics).  Everything it adds
+spectrum file (see :mod:`qcorr.spectra.molecular` for the kinematics).  Everything it adds
 is computed here by :func:`add_molecular_variables` from a :class:`MolecularParts`:
 raw (unnormalised) per-segment spectra and per-group sums that add up across
 frame blocks.  So the single job and ``qcorr combine`` of its frame blocks
@@ -183,7 +183,7 @@ def add_molecular_variables(ds: xr.Dataset, parts: MolecularParts) -> xr.Dataset
     out = ds.assign_coords(displacement_lag=(("displacement_lag",), np.asarray(parts.msd_lag_ps, dtype=np.float64), {"units": "ps", "long_name": "time lag of the mean-square displacement"}))
     out = out.assign(data)
     out.attrs["principal_moment_frames"] = int(parts.moment_frames)
-    out.attrs["molecular_decomposition"] = f"molecules = {parts.definition}s (qcorr.molecular)"
+    out.attrs["molecular_decomposition"] = f"molecules = {parts.definition}s (qcorr.spectra.molecular)"
     out.attrs["molecule_definition"] = parts.definition
     return out
 

@@ -6,7 +6,7 @@ atomically, byte-reproducible: no wall-clock time is stored), reads it back and
 checks that a file really is a qcorr spectrum file before anything uses it.
 
 Everything here is I/O and bookkeeping; the physics (the segment-averaged
-spectrum estimator) lives in :mod:`qcorr.spectrum`, the normalisation to the
+spectrum estimator) lives in :mod:`qcorr.spectra.estimator`, the normalisation to the
 degrees of freedom in :func:`normalise_spectrum`.
 """
 
@@ -253,7 +253,7 @@ GROUP_TABLE: dict[str, tuple[str | None, str]] = {
 
 def group_table(groups) -> dict[str, np.ndarray]:
     """Arrays of the group table from objects with ``name``, ``selection``, ``degrees_of_freedom``,
-    ``constraints``, ``atom_count``, ``molecule_count``, ``mass`` (see :class:`qcorr.trajectory.GroupInfo`)."""
+    ``constraints``, ``atom_count``, ``molecule_count``, ``mass`` (see :class:`qcorr.reading.trajectory.GroupInfo`)."""
     return {
         "group": np.array([g.name for g in groups]),
         "degrees_of_freedom": np.array([g.degrees_of_freedom for g in groups], dtype=float),
@@ -404,7 +404,7 @@ def raw_spectra(power: np.ndarray, frequency_Hz: np.ndarray, temperature_K: floa
     Parameters
     ----------
     power : ndarray (..., n_freq)
-        One-sided mass-weighted velocity PSD, (u Å² ps⁻²)/Hz (:class:`qcorr.spectrum.SegmentPowers`).
+        One-sided mass-weighted velocity PSD, (u Å² ps⁻²)/Hz (:class:`qcorr.spectra.estimator.SegmentPowers`).
     frequency_Hz : ndarray (n_freq,), Hz
     temperature_K : float
         Stated temperature, K.
@@ -419,7 +419,7 @@ def raw_spectra(power: np.ndarray, frequency_Hz: np.ndarray, temperature_K: floa
     -------
     ndarray, same shape as *power*, cm
     """
-    from qcorr.spectrum import finite_difference_power_transfer, vdos_per_wavenumber
+    from qcorr.spectra.estimator import finite_difference_power_transfer, vdos_per_wavenumber
 
     raw = vdos_per_wavenumber(power, temperature_K)
     if finite_difference_timestep_ps is not None:
@@ -442,7 +442,7 @@ def combine_file_records(records: list, names: list[str]) -> list[dict]:
     """Join the input-file records of N block files into one record per file.
 
     Each block job hashes its own share of every input file (``sha256_parts``, see
-    :func:`qcorr.trajectory.describe_files`); the joined record lists the parts of all
+    :func:`qcorr.reading.trajectory.describe_files`); the joined record lists the parts of all
     blocks in block order.  The blocks must name the same files with the same sizes and
     their parts must cover each file from its first to its last byte without gap or
     overlap.  Records of files hashed whole (``sha256``) must be identical.
@@ -503,7 +503,7 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
     to floating-point rounding.  Frame statistics (box volume, centre-of-mass motion)
     are frame-weighted means: each block counts the frames from its first segment's
     start up to the next block's (the last block to its end), as the single job does.
-    Molecular variables are joined by :func:`qcorr.molecular_file.combine_molecular_parts`.
+    Molecular variables are joined by :func:`qcorr.spectra.molecular_file.combine_molecular_parts`.
 
     Parameters
     ----------
@@ -614,7 +614,7 @@ def join_blocks(datasets: list[xr.Dataset], names: list[str], command_line: str,
         segment_first_frame=np.concatenate([ds["segment_first_frame"].values for ds in datasets]),
         attrs=attrs,
     )
-    from qcorr.molecular_file import add_molecular_variables, combine_molecular_parts
+    from qcorr.spectra.molecular_file import add_molecular_variables, combine_molecular_parts
 
     parts = combine_molecular_parts(datasets, names)
     return combined if parts is None else add_molecular_variables(combined, parts)

@@ -11,7 +11,7 @@ Two figures are made from a spectrum file (DEVELOPERS.md, "The spectrum file"):
   whose right end is the whole correction of Berens, Mackay, White and
   Wilson [1]_ and whose steps show the bands that carry it.
 
-The weighting functions come from :mod:`qcorr.weights` (one definition for the
+The weighting functions come from :mod:`qcorr.thermo.weights` (one definition for the
 whole package); ``c`` is ``k`` (heat capacity, entropy) or ``kT`` (energies)
 converted to the chosen basis.  The integral is the trapezoid rule on the
 file's wavenumber grid, the rule under which the spectrum is normalised to the
@@ -41,11 +41,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from scipy.integrate import cumulative_trapezoid
 
-from qcorr import weights
 from qcorr.constants import reduced_frequency, wavenumber_per_THz
 from qcorr.errors import ConfigError, PhysicsError
-from qcorr.harmonic import to_physical, unit_of
 from qcorr.safe_write import atomic_path
+from qcorr.thermo import weights
+from qcorr.thermo.harmonic import to_physical, unit_of
 
 #: figure file formats qcorr writes, by file-name extension
 FIGURE_FORMATS: tuple[str, ...] = ("svg", "png", "pdf")
@@ -155,7 +155,7 @@ def cumulative_corrections(
         system), energies in kJ/mol (kJ per system).  Value at ν̃:
         ``c ∫_0^ν̃ S(ν̃') ΔW(u) dν̃'`` with ``c = k`` or ``k T`` times ``N_A/n`` for a
         molar basis (``n`` molecules or atoms of the group), by the trapezoid rule,
-        starting at 0; the conversion is :func:`qcorr.harmonic.to_physical`, the one
+        starting at 0; the conversion is :func:`qcorr.thermo.harmonic.to_physical`, the one
         the property table uses.  Attributes ``temperature_K``, ``group``, ``basis``.
 
     Notes
@@ -262,7 +262,7 @@ def plot_spectrum(
     -----
     Left axis: ``vdos`` (cm, i.e. degrees of freedom per cm⁻¹).  Right axis, 0–1:
     the quantum heat-capacity weight ``u² eᵘ/(eᵘ−1)²`` and the thermal-energy weight
-    ``u/(eᵘ−1)`` of :mod:`qcorr.weights` at ``u = h c ν̃/(k T)``; a classical
+    ``u/(eᵘ−1)`` of :mod:`qcorr.thermo.weights` at ``u = h c ν̃/(k T)``; a classical
     oscillator has weight 1 in both.
     """
     figure_format(path, "--spectrum-figure")

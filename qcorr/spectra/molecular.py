@@ -558,8 +558,8 @@ class CentreOfMassDisplacement:
         return lag, msd
 
     def self_diffusion_m2_per_s(self) -> NDArray[np.float64]:
-        """Einstein D (m²/s) per group, see :func:`qcorr.molecular_file.self_diffusion_from_msd`."""
-        from qcorr.molecular_file import self_diffusion_from_msd
+        """Einstein D (m²/s) per group, see :func:`qcorr.spectra.molecular_file.self_diffusion_from_msd`."""
+        from qcorr.spectra.molecular_file import self_diffusion_from_msd
 
         lag, msd = self.result()
         out = self_diffusion_from_msd(lag, msd, self._counts)
@@ -581,13 +581,13 @@ class MolecularPass:
     channel_indices, masses : arrays (n_channels,)
         Atom indices and masses (u) of the spectrum channels.
     group_members : bool array (n_groups, n_channels)
-    settings : qcorr.spectrum.SpectrumSettings
+    settings : qcorr.spectra.estimator.SpectrumSettings
     first_frame : int
         Trajectory frame used to detect linear molecules (the window's first frame,
         so that every frame block of a run finds the same layout).
     definition : {"residue", "fragment"}
     first_segment, stop_segment, workers :
-        As for :class:`qcorr.spectrum.SegmentAccumulator`.
+        As for :class:`qcorr.spectra.estimator.SegmentAccumulator`.
     first_sample, count_stop : int
         Velocity samples (window frames) ``first_sample .. count_stop-1`` are this
         job's counted frames (moments, mean-square displacement); the spectra take
@@ -601,7 +601,7 @@ class MolecularPass:
                  stop_segment: int | None = None, workers: int = 1,
                  linear_ratio: float = DEFAULT_LINEAR_RATIO, first_sample: int = 0,
                  count_stop: int | None = None) -> None:
-        from qcorr.spectrum import SegmentAccumulator
+        from qcorr.spectra.estimator import SegmentAccumulator
 
         self.channel_indices = np.asarray(channel_indices, dtype=np.int64)
         ids = molecule_ids_from_universe(universe, self.channel_indices, definition)
@@ -649,14 +649,14 @@ class MolecularPass:
 
     def parts(self, temperature_K: float, constraint_count: ArrayLike, *,
               finite_difference_timestep_ps: float | None = None):
-        """The :class:`qcorr.molecular_file.MolecularParts` of this pass (after the last frame).
+        """The :class:`qcorr.spectra.molecular_file.MolecularParts` of this pass (after the last frame).
 
         *temperature_K* is the stated temperature (K), *constraint_count* the
         holonomic constraints of each group (used for the vibrational degrees of
         freedom per molecule).
         """
-        from qcorr.molecular_file import MolecularParts
-        from qcorr.spectrum_file import raw_spectra
+        from qcorr.spectra.molecular_file import MolecularParts
+        from qcorr.spectra.spectrum_file import raw_spectra
 
         lay = self.layout
         powers = self.accumulator.result()
@@ -702,7 +702,7 @@ class MolecularPass:
 
     def add_variables(self, ds, *, finite_difference_timestep_ps: float | None = None):
         """*ds* (the atomic spectrum of the same groups and segments) with the molecular variables."""
-        from qcorr.molecular_file import add_molecular_variables
+        from qcorr.spectra.molecular_file import add_molecular_variables
 
         parts = self.parts(float(ds.attrs["temperature_K"]), ds["constraint_count"].values,
                            finite_difference_timestep_ps=finite_difference_timestep_ps)

@@ -2,7 +2,7 @@
 
 Given the vibrational density of states S(nu~) of an atom group (per unit
 wavenumber, integral = degrees of freedom; the spectrum-file contract in
-``DEVELOPERS.md``), every property X of :mod:`qcorr.weights` is
+``DEVELOPERS.md``), every property X of :mod:`qcorr.thermo.weights` is
 
     X = m * integral_0^inf S(nu~) W_X(u) dnu~,   u = h c nu~ / (k T),
 
@@ -81,8 +81,8 @@ from numpy.typing import ArrayLike, NDArray
 
 from qcorr import constants as C
 from qcorr.errors import ConfigError, SpectrumFileError
-from qcorr.table import BASES, TableRow
-from qcorr.weights import PROPERTIES, HarmonicProperty, energy_quantum, get_property
+from qcorr.outputs.table import BASES, TableRow
+from qcorr.thermo.weights import PROPERTIES, HarmonicProperty, energy_quantum, get_property
 
 FloatArray = NDArray[np.float64]
 
@@ -140,7 +140,7 @@ def mode_integrals(
     temperature_K : float
         Temperature at which the weights are evaluated, K.
     prop : HarmonicProperty
-        From :data:`qcorr.weights.PROPERTIES`.
+        From :data:`qcorr.thermo.weights.PROPERTIES`.
 
     Returns
     -------
@@ -742,7 +742,7 @@ def harmonic_properties(
     Parameters
     ----------
     ds : xarray.Dataset
-        Spectrum following the contract (``qcorr.spectrum_file.read_spectrum``).
+        Spectrum following the contract (``qcorr.spectra.spectrum_file.read_spectrum``).
     system : str
         System identifier for the ``system`` column.
     path : str or path-like
@@ -751,7 +751,7 @@ def harmonic_properties(
         Temperatures, K (> 0); default: the spectrum's ``temperature_K``.  Other
         temperatures are harmonic extrapolations (noted in each row).
     properties : list of str, optional
-        Property names (:data:`qcorr.weights.PROPERTIES`); default all.
+        Property names (:data:`qcorr.thermo.weights.PROPERTIES`); default all.
     md_values : dict, optional
         ``{(group, property): value}``, the classical MD value per mole of
         molecules in the table's molar unit (J/(mol K) or kJ/mol), at the

@@ -1,0 +1,1 @@
+"""Outputs: the property table (CSV + JSON sidecar) and figures."""
