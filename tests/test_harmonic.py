@@ -34,7 +34,7 @@ from scipy import constants as sc
 from scipy.integrate import quad
 
 from qcorr.errors import ConfigError, SpectrumFileError
-from qcorr.thermo import harmonic
+from qcorr.thermo import harmonic, segment_statistics, spectrum_groups, spectrum_integrals
 from qcorr.thermo.weights import PROPERTIES
 
 R = sc.R  # CODATA via scipy, J/(mol K)
@@ -61,7 +61,7 @@ def test_einstein_solid_exact(ratio: float) -> None:
     ds = spectra.einstein_solid_dataset(einstein_temperature_K=theta, temperature_K=temperature)
     result = harmonic.harmonic_properties(ds, system="einstein")
     # the grid point carrying the modes is theta/c2 up to one rounding: use its exact x
-    g = harmonic.spectrum_groups(ds)[0]
+    g = spectrum_groups.spectrum_groups(ds)[0]
     nu_e = g.wavenumber_cm[int(np.argmax(g.vdos))]
     x = sc.h * sc.c * 100 * nu_e / (sc.k * temperature)
     expected = {  # per mole of atoms, Einstein's closed forms (3 modes per atom)
@@ -214,7 +214,7 @@ def test_first_bin_log_integral_exact() -> None:
     s0, s1 = 2.0, 5.0
     expected = quad(lambda v: (s0 + (s1 - s0) * v / h) * math.log(c * v), 0, h,
                     epsabs=0, epsrel=1e-13)[0]
-    got = harmonic.log_moment(np.array([0.0, h]), np.array([s0, s1]), temperature)
+    got = spectrum_integrals.log_moment(np.array([0.0, h]), np.array([s0, s1]), temperature)
     assert float(got) == pytest.approx(expected, rel=1e-13)
 
 
@@ -224,7 +224,7 @@ def test_log_singular_weights_never_evaluated_at_zero() -> None:
     s = spectra.lorentzian_vdos(x, friction_per_ps=5.0, dof=3.0)
     with np.errstate(all="raise"):
         for name in ("entropy", "helmholtz_free_energy"):
-            cl, qu, co = harmonic.mode_integrals(x, s, 300.0, PROPERTIES[name])
+            cl, qu, co = spectrum_integrals.mode_integrals(x, s, 300.0, PROPERTIES[name])
             assert np.isfinite(cl) and np.isfinite(qu) and np.isfinite(co)
 
 
@@ -247,7 +247,7 @@ def test_any_positive_spectrum_signs_and_monotonicity(values, t1, factor) -> Non
     out = {}
     for t in (t1, t2):
         for name in ("energy", "heat_capacity", "entropy", "helmholtz_free_energy"):
-            _, _, corr = harmonic.mode_integrals(x, s, t, PROPERTIES[name])
+            _, _, corr = spectrum_integrals.mode_integrals(x, s, t, PROPERTIES[name])
             out[name, t] = float(corr) * (t if PROPERTIES[name].times_kT else 1.0)
     for t in (t1, t2):
         assert out["energy", t] > 0
@@ -362,7 +362,7 @@ def test_zero_frequency_criterion() -> None:
     """Diffusing iff S(0) > threshold x dof/<nu~> and > 3 standard errors (qcorr's definition)."""
     x = np.linspace(0, 800, 801)
     solid = spectra.debye_vdos(x, 300.0, 30.0)
-    check = harmonic.zero_frequency_check(x, solid, float("nan"))
+    check = spectrum_groups.zero_frequency_check(x, solid, float("nan"))
     assert not check.diffusing and check.ratio == 0.0
     # a pedestal: S(0) set so that the ratio is just below / above the threshold
     mean_wn = np.trapezoid(x * solid, x) / np.trapezoid(solid, x)
@@ -370,14 +370,14 @@ def test_zero_frequency_criterion() -> None:
     for ratio, expect in [(0.04, False), (0.06, True)]:
         s = solid.copy()
         s[0] = ratio * scale
-        check = harmonic.zero_frequency_check(x, s, float("nan"), threshold=0.05)
+        check = spectrum_groups.zero_frequency_check(x, s, float("nan"), threshold=0.05)
         assert check.diffusing is expect
         assert check.ratio == pytest.approx(ratio * scale / (np.trapezoid(s, x) / (np.trapezoid(x * s, x) / np.trapezoid(s, x))), rel=1e-12)
     # above the threshold but within 3 standard errors of zero: not clearly diffusing
     s = solid.copy()
     s[0] = 0.5 * scale
-    assert not harmonic.zero_frequency_check(x, s, zero_frequency_se=0.2 * scale).diffusing
-    assert harmonic.zero_frequency_check(x, s, zero_frequency_se=0.1 * scale).diffusing
+    assert not spectrum_groups.zero_frequency_check(x, s, zero_frequency_se=0.2 * scale).diffusing
+    assert spectrum_groups.zero_frequency_check(x, s, zero_frequency_se=0.1 * scale).diffusing
 
 
 def test_diffusing_group_refuses_absolute_entropy_keeps_corrections() -> None:
@@ -405,13 +405,13 @@ def test_effective_segment_count_welch() -> None:
     rho_1 = sum_{n<L/2} sin^2 cos^2 / sum_n sin^4 = (L/16)/(3L/8) = 1/6
     (Welch's value 0.167 for the Hann window).
     """
-    assert harmonic.effective_segment_count(10, 64, 0.0, "hann") == pytest.approx(10.0)
-    assert harmonic.effective_segment_count(10, 64, 0.0, "none") == pytest.approx(10.0)
+    assert segment_statistics.effective_segment_count(10, 64, 0.0, "hann") == pytest.approx(10.0)
+    assert segment_statistics.effective_segment_count(10, 64, 0.0, "none") == pytest.approx(10.0)
     k = 10
     expected = k / (1 + 2 * (1 - 1 / k) * (1 / 6) ** 2)
-    assert harmonic.effective_segment_count(k, 64, 0.5, "hann") == pytest.approx(expected, rel=1e-12)
+    assert segment_statistics.effective_segment_count(k, 64, 0.5, "hann") == pytest.approx(expected, rel=1e-12)
     # rectangular taper at 50 %: rho_1 = 1/2
-    assert harmonic.effective_segment_count(k, 64, 0.5, "none") == pytest.approx(
+    assert segment_statistics.effective_segment_count(k, 64, 0.5, "none") == pytest.approx(
         k / (1 + 2 * (1 - 1 / k) * 0.25), rel=1e-12
     )
 
@@ -428,13 +428,13 @@ def test_standard_error_is_calibrated() -> None:
     x = np.linspace(0, 600, 301)
     truth = spectra.debye_vdos(x, 400.0, 12.0)
     prop = PROPERTIES["heat_capacity"]
-    true_value = float(harmonic.mode_integrals(x, truth, 150.0, prop)[1])
+    true_value = float(spectrum_integrals.mode_integrals(x, truth, 150.0, prop)[1])
     z = []
     for _ in range(400):
         segs = truth[None, :] * rng.gamma(4.0, 0.25, size=(16, x.size))
-        estimate = float(harmonic.mode_integrals(x, segs.mean(axis=0), 150.0, prop)[1])
-        per_segment = harmonic.mode_integrals(x, segs, 150.0, prop)[1]
-        se = float(harmonic.segment_standard_error(per_segment, 16.0))
+        estimate = float(spectrum_integrals.mode_integrals(x, segs.mean(axis=0), 150.0, prop)[1])
+        per_segment = spectrum_integrals.mode_integrals(x, segs, 150.0, prop)[1]
+        se = float(segment_statistics.segment_standard_error(per_segment, 16.0))
         z.append((estimate - true_value) / se)
     spread = float(np.std(z))
     assert 1.0 - 4 * 0.035 < spread < math.sqrt(15 / 13) + 4 * 0.035
@@ -462,18 +462,18 @@ def test_standard_error_calibrated_for_overlapping_normalised_segments() -> None
     index = (np.arange(count) * hop)[:, None] + np.arange(length)[None, :]
     x = np.arange(length // 2 + 1) * 10.0  # cm-1
     prop = PROPERTIES["heat_capacity"]
-    k_eff = harmonic.effective_segment_count(count, length, overlap, "hann")
+    k_eff = segment_statistics.effective_segment_count(count, length, overlap, "hann")
     estimates, errors, naive = [], [], []
     for _ in range(300):
         v = lfilter([1.0], [1.0, -a], rng.standard_normal((channels, n)), axis=1)
         power = (np.abs(np.fft.rfft(v[:, index] * window, axis=-1)) ** 2).mean(axis=0)
         common = power * (3.0 / np.trapezoid(power.mean(axis=0), x))  # file normalisation
-        estimates.append(float(harmonic.mode_integrals(x, common.mean(axis=0), 300.0, prop)[2]))
-        per_segment = harmonic.mode_integrals(
-            x, harmonic.normalised_segments(x, common, 3.0), 300.0, prop)[2]
-        errors.append(float(harmonic.segment_standard_error(per_segment, k_eff)))
-        naive.append(float(harmonic.segment_standard_error(
-            harmonic.mode_integrals(x, common, 300.0, prop)[2], count)))
+        estimates.append(float(spectrum_integrals.mode_integrals(x, common.mean(axis=0), 300.0, prop)[2]))
+        per_segment = spectrum_integrals.mode_integrals(
+            x, segment_statistics.normalised_segments(x, common, 3.0), 300.0, prop)[2]
+        errors.append(float(segment_statistics.segment_standard_error(per_segment, k_eff)))
+        naive.append(float(segment_statistics.segment_standard_error(
+            spectrum_integrals.mode_integrals(x, common, 300.0, prop)[2], count)))
     spread = float(np.std(estimates))
     assert 0.85 < spread / np.mean(errors) < 1.15
     assert spread / np.mean(naive) > 1.5

@@ -21,7 +21,7 @@ from qcorr.errors import ConfigError, PhysicsError, QcorrWarning, SpectrumFileEr
 from qcorr.outputs import table
 from qcorr.spectra.spectrum_file import group_names, read_spectrum
 from qcorr.thermo import twophase
-from qcorr.thermo.harmonic import segment_effective_count, segment_standard_error
+from qcorr.thermo.segment_statistics import segment_effective_count, segment_standard_error
 
 NAME = "liquid"
 HELP = "absolute entropy, free energy, energy, heat capacity of liquids by the two-phase model (2PT)"
@@ -233,7 +233,7 @@ def _segments_rescaled(gin: GroupInput, wavenumber: np.ndarray) -> GroupInput:
     The averaged spectrum is normalised to the degrees of freedom as a whole (a ratio of
     power to total power); evaluating 2PT on segments scaled the same way makes their
     scatter include the fluctuation of that normalisation (delta-method variance of a
-    ratio estimator), as :func:`qcorr.thermo.harmonic.normalised_segments` does for the harmonic
+    ratio estimator), as :func:`qcorr.thermo.segment_statistics.normalised_segments` does for the harmonic
     table.  The component split inside a segment is left as measured.
     """
     names = list(gin.part_segments)

@@ -16,6 +16,7 @@ from qcorr.errors import ConfigError, QcorrWarning
 from qcorr.outputs import table
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo import harmonic
+from qcorr.thermo.spectrum_groups import DEFAULT_ZERO_FREQUENCY_THRESHOLD
 from qcorr.thermo.weights import PROPERTIES, get_property
 
 NAME = "properties"
@@ -56,7 +57,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="wavenumbers in cm-1 of the bonds constrained in the MD, per molecule "
                              "of GROUP; reported on separate rows (method frozen_bond_addon)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=float,
-                        default=harmonic.DEFAULT_ZERO_FREQUENCY_THRESHOLD,
+                        default=DEFAULT_ZERO_FREQUENCY_THRESHOLD,
                         help="a group diffuses when S(0) exceeds this fraction of dof/<wavenumber> "
                              "(and 3 standard errors); its absolute entropy and free energy are refused")
     parser.add_argument("--quiet", action="store_true", help="do not print the table" + _NO_AUTO_DEFAULT)

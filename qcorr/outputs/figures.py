@@ -45,7 +45,7 @@ from qcorr.constants import reduced_frequency, wavenumber_per_THz
 from qcorr.errors import ConfigError, PhysicsError
 from qcorr.safe_write import atomic_path
 from qcorr.thermo import weights
-from qcorr.thermo.harmonic import to_physical, unit_of
+from qcorr.thermo.spectrum_integrals import to_physical, unit_of
 
 #: figure file formats qcorr writes, by file-name extension
 FIGURE_FORMATS: tuple[str, ...] = ("svg", "png", "pdf")
@@ -155,7 +155,7 @@ def cumulative_corrections(
         system), energies in kJ/mol (kJ per system).  Value at ν̃:
         ``c ∫_0^ν̃ S(ν̃') ΔW(u) dν̃'`` with ``c = k`` or ``k T`` times ``N_A/n`` for a
         molar basis (``n`` molecules or atoms of the group), by the trapezoid rule,
-        starting at 0; the conversion is :func:`qcorr.thermo.harmonic.to_physical`, the one
+        starting at 0; the conversion is :func:`qcorr.thermo.spectrum_integrals.to_physical`, the one
         the property table uses.  Attributes ``temperature_K``, ``group``, ``basis``.
 
     Notes
