@@ -20,7 +20,7 @@ from qcorr import constants as C
 from qcorr.errors import ConfigError, PhysicsError, QcorrWarning, SpectrumFileError
 from qcorr.outputs import table
 from qcorr.spectra.spectrum_file import group_names, read_spectrum
-from qcorr.thermo import twophase
+from qcorr.thermo import hard_sphere_gas, twophase
 from qcorr.thermo.segment_statistics import segment_effective_count, segment_standard_error
 
 NAME = "liquid"
@@ -78,11 +78,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="from-rotation: solve the fluidicity equation with the rotational "
                              "zero-frequency value (default, published form); same-as-translation: "
                              "reuse the translational fluidicity")
-    parser.add_argument("--hard-sphere-entropy", choices=twophase.HARD_SPHERE_FORMS,
+    parser.add_argument("--hard-sphere-entropy", choices=hard_sphere_gas.HARD_SPHERE_FORMS,
                         default="published",
                         help="published: with ln z(y) (reference gas at the hard-sphere pressure; "
                              "default); constant-volume: Carnahan-Starling entropy at fixed N, V, T")
-    parser.add_argument("--gas-volume", choices=twophase.GAS_VOLUME_CHOICES, default="gas-particles",
+    parser.add_argument("--gas-volume", choices=hard_sphere_gas.GAS_VOLUME_CHOICES, default="gas-particles",
                         help="volume per gas particle in the hard-sphere entropy: V/(fN) "
                              "(gas-particles, default) or V/N (all-particles)")
     parser.add_argument("--diffusion-from", choices=("spectrum", "msd"), default="spectrum",
@@ -422,14 +422,14 @@ def run(args: argparse.Namespace) -> int:
                     / (C.boltzmann_J_per_K * t_kin) * C.speed_of_light_cm_per_s)
 
         s0_spectrum = float(gin.parts["translation"][0])
-        d_spectrum = twophase.self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count,
+        d_spectrum = hard_sphere_gas.self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count,
                                                                  t_kin, gin.mass_u)
         if args.diffusion_from == "msd" and not math.isfinite(gin.msd_diffusion_m2_per_s):
             raise PhysicsError(f"group '{name}': --diffusion-from msd needs the MSD diffusion coefficient, "
                                "which the spectrum file lacks; remake it with 'qcorr spectrum --molecular'")
         d_correction = 0.0
         if args.viscosity is not None:
-            d_correction = twophase.finite_size_diffusion_correction(
+            d_correction = hard_sphere_gas.finite_size_diffusion_correction(
                 temperature, args.viscosity, volume ** (1.0 / 3.0))
         n_seg = ds.sizes["segment"]
         gin = _segments_rescaled(gin, wavenumber)
