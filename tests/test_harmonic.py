@@ -59,7 +59,7 @@ def test_einstein_solid_exact(ratio: float) -> None:
     theta = 240.0
     temperature = ratio * theta
     ds = spectra.einstein_solid_dataset(einstein_temperature_K=theta, temperature_K=temperature)
-    result = harmonic.harmonic_properties(ds, system="einstein")
+    result = harmonic.harmonic_property_rows(ds, system="einstein")
     # the grid point carrying the modes is theta/c2 up to one rounding: use its exact x
     g = spectrum_groups.spectrum_groups(ds)[0]
     nu_e = g.wavenumber_cm[int(np.argmax(g.vdos))]
@@ -106,7 +106,7 @@ def test_debye_solid_against_quadrature(ratio: float) -> None:
     theta = 343.0
     temperature = ratio * theta
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=temperature)
-    result = harmonic.harmonic_properties(ds, system="debye", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="debye", include_msd=False)
     ref = _debye_reference(ratio)
     for name in PROPERTIES:
         row = _one(result, property=name, basis="per_mole_atoms", method="harmonic")
@@ -127,7 +127,7 @@ def test_debye_zero_point_energy_nine_eighths() -> None:
     """Debye ZPE = (9/8) N k theta_D (Debye 1912), per system in kJ, for 4 atoms."""
     theta = 428.0
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=300.0, atoms=4)
-    result = harmonic.harmonic_properties(ds, system="al", properties=["zero_point_energy"],
+    result = harmonic.harmonic_property_rows(ds, system="al", properties=["zero_point_energy"],
                                           include_msd=False)
     row = _one(result, property="zero_point_energy", basis="per_system")
     assert row.quantum == pytest.approx(9 / 8 * 4 * sc.k * theta / 1000, rel=1e-6)
@@ -136,7 +136,7 @@ def test_debye_zero_point_energy_nine_eighths() -> None:
 def test_debye_table_value_at_theta() -> None:
     """Cv/3Nk = 0.9517 at T = theta_D: Debye-function table, 4 digits (from memory; also by quad)."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0)
-    result = harmonic.harmonic_properties(ds, system="d", properties=["heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="d", properties=["heat_capacity"],
                                           include_msd=False)
     value = _one(result, property="heat_capacity", basis="per_mole_atoms").quantum / (3 * R)
     assert value == pytest.approx(0.9517, abs=5e-5)
@@ -161,7 +161,7 @@ def test_aluminium_handbook_heat_capacity() -> None:
     electronic = 1.35e-3 * 298.15
     ds = spectra.debye_solid_dataset(debye_temperature_K=428.0, temperature_K=298.15,
                                      mass_g_mol=26.9815)
-    result = harmonic.harmonic_properties(ds, system="al", properties=["heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="al", properties=["heat_capacity"],
                                           include_msd=False)
     cv = _one(result, property="heat_capacity", basis="per_mole_atoms").quantum
     assert cv < cp_crc  # the lattice alone must fall short of the handbook Cp
@@ -177,7 +177,7 @@ def test_debye_mean_square_displacement(ratio: float) -> None:
     temperature = ratio * theta
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=temperature,
                                      mass_g_mol=mass)
-    result = harmonic.harmonic_properties(ds, system="cu", properties=["energy"])
+    result = harmonic.harmonic_property_rows(ds, system="cu", properties=["energy"])
     row = _one(result, property="mean_square_displacement")
     m = mass * sc.atomic_mass
     integral = quad(lambda x: x / math.expm1(x), 0, 1 / ratio, epsabs=0, epsrel=1e-13)[0]
@@ -196,7 +196,7 @@ def test_heat_capacity_is_dE_dT_on_a_spectrum() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=150.0,
                                      points_below_debye=4000)
     temps = [149.99, 150.0, 150.01]
-    result = harmonic.harmonic_properties(ds, system="d", temperatures_K=temps, include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="d", temperatures_K=temps, include_msd=False)
 
     def q(name, t):
         return _one(result, property=name, basis="per_system", temperature_K=t).quantum
@@ -276,7 +276,7 @@ def test_bases_are_consistent() -> None:
         x, {"total": spectra.GroupSpec(s, 9.0, atom_count=3, molecule_count=1, group_mass_g_mol=18.0)},
         temperature_K=300.0,
     )
-    result = harmonic.harmonic_properties(ds, system="w", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="w", include_msd=False)
     for name in PROPERTIES:
         mol = _one(result, property=name, basis="per_mole_molecules")
         atoms = _one(result, property=name, basis="per_mole_atoms")
@@ -289,7 +289,7 @@ def test_bases_are_consistent() -> None:
 def test_md_value_plus_correction() -> None:
     """X_q = X_MD + dX, with X_MD per mole of molecules converted to every basis."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0, atoms=4)
-    result = harmonic.harmonic_properties(
+    result = harmonic.harmonic_property_rows(
         ds, system="m", md_values={("total", "heat_capacity"): 24.0}, include_msd=False,
         temperatures_K=[300.0, 200.0],
     )
@@ -307,10 +307,10 @@ def test_temperature_scan_equals_evaluation_at_that_temperature() -> None:
     """A scan row at T equals the same spectrum evaluated with temperature_K = T; noted."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0,
                                      points_below_debye=2000)
-    scan = harmonic.harmonic_properties(ds, system="s", temperatures_K=[150.0], include_msd=False)
+    scan = harmonic.harmonic_property_rows(ds, system="s", temperatures_K=[150.0], include_msd=False)
     ds2 = ds.copy()
     ds2.attrs = dict(ds.attrs, temperature_K=150.0)
-    direct = harmonic.harmonic_properties(ds2, system="s", include_msd=False)
+    direct = harmonic.harmonic_property_rows(ds2, system="s", include_msd=False)
     for name in PROPERTIES:
         a = _one(scan, property=name, basis="per_system")
         b = _one(direct, property=name, basis="per_system")
@@ -327,8 +327,8 @@ def test_frozen_bond_addon() -> None:
         x, {"total": spectra.GroupSpec(s, 6.0, atom_count=30, molecule_count=10, group_mass_g_mol=180.0)},
         temperature_K=298.15,
     )
-    result = harmonic.harmonic_properties(
-        ds, system="w", frozen_bond_wavenumbers={"total": [3657.0, 3756.0]}, include_msd=False
+    result = harmonic.harmonic_property_rows(
+        ds, system="w", frozen_bond_wavenumbers_cm={"total": [3657.0, 3756.0]}, include_msd=False
     )
     zpe = _one(result, method="frozen_bond_addon", property="zero_point_energy",
                basis="per_mole_molecules")
@@ -383,7 +383,7 @@ def test_zero_frequency_criterion() -> None:
 def test_diffusing_group_refuses_absolute_entropy_keeps_corrections() -> None:
     """Liquid-like group: absolute S, A and MSD refused with a pointer to 'qcorr liquid'."""
     ds = _liquid_like_dataset()
-    result = harmonic.harmonic_properties(ds, system="mix")
+    result = harmonic.harmonic_property_rows(ds, system="mix")
     assert result.groups["liquid"]["diffusing"] and not result.groups["solid"]["diffusing"]
     for name in ("entropy", "helmholtz_free_energy"):
         row = _one(result, group="liquid", property=name, basis="per_mole_molecules")
@@ -484,8 +484,8 @@ def test_standard_errors_reported_and_scale_with_scatter() -> None:
                                            points_below_debye=1000, segment_scatter=0.01, seed=3)
     ds_noisy = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                            points_below_debye=1000, segment_scatter=0.04, seed=3)
-    r1 = harmonic.harmonic_properties(ds_quiet, system="q", properties=["entropy"], include_msd=False)
-    r2 = harmonic.harmonic_properties(ds_noisy, system="n", properties=["entropy"], include_msd=False)
+    r1 = harmonic.harmonic_property_rows(ds_quiet, system="q", properties=["entropy"], include_msd=False)
+    r2 = harmonic.harmonic_property_rows(ds_noisy, system="n", properties=["entropy"], include_msd=False)
     a = _one(r1, property="entropy", basis="per_mole_atoms")
     b = _one(r2, property="entropy", basis="per_mole_atoms")
     assert a.quantum_se > 0 and b.quantum_se > 0
@@ -505,7 +505,7 @@ def test_negative_density_beyond_noise_refused() -> None:
         temperature_K=300.0,
     )
     with pytest.raises(SpectrumFileError) as info:
-        harmonic.harmonic_properties(ds, system="x", path="neg.nc")
+        harmonic.harmonic_property_rows(ds, system="x", source="neg.nc")
     msg = str(info.value)
     assert "neg.nc" in msg and "'total'" in msg and "100 cm-1" in msg and "negative beyond noise" in msg
 
@@ -523,24 +523,24 @@ def test_negative_density_within_noise_accepted() -> None:
         x, {"total": spectra.GroupSpec(segs.mean(axis=0), 12.0, 4, 4, 254.0, segment_spectra=segs)},
         temperature_K=300.0, segment_overlap=0.0,
     )
-    harmonic.harmonic_properties(ds, system="x", include_msd=False)
+    harmonic.harmonic_property_rows(ds, system="x", include_msd=False)
 
 
 @pytest.mark.parametrize("temps", [[0.0], [-10.0], [300.0, float("nan")]])
 def test_nonpositive_temperature_refused(temps) -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300, points_below_debye=500)
     with pytest.raises(ConfigError, match="--temperatures"):
-        harmonic.harmonic_properties(ds, system="x", temperatures_K=temps)
+        harmonic.harmonic_property_rows(ds, system="x", temperatures_K=temps)
 
 
 def test_unknown_property_and_group_refused() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300, points_below_debye=500)
     with pytest.raises(ConfigError, match="unknown property 'enthalpy'.*heat_capacity"):
-        harmonic.harmonic_properties(ds, system="x", properties=["enthalpy"])
+        harmonic.harmonic_property_rows(ds, system="x", properties=["enthalpy"])
     with pytest.raises(ConfigError, match="no group 'water'"):
-        harmonic.harmonic_properties(ds, system="x", md_values={("water", "energy"): 1.0})
+        harmonic.harmonic_property_rows(ds, system="x", md_values={("water", "energy"): 1.0})
     with pytest.raises(ConfigError, match="--frozen-bond-wavenumbers"):
-        harmonic.harmonic_properties(ds, system="x", frozen_bond_wavenumbers={"total": [-5.0]})
+        harmonic.harmonic_property_rows(ds, system="x", frozen_bond_wavenumbers_cm={"total": [-5.0]})
 
 
 def test_caution_when_integral_differs_from_dof() -> None:
@@ -551,9 +551,9 @@ def test_caution_when_integral_differs_from_dof() -> None:
         x, {"total": spectra.GroupSpec(s, 12.0, atom_count=4, molecule_count=4, group_mass_g_mol=100.0)},
         temperature_K=300.0,
     )
-    result = harmonic.harmonic_properties(ds, system="x", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="x", include_msd=False)
     assert any("integrates to 9, not to its 12 degrees of freedom" in c for c in result.cautions)
-    ok = harmonic.harmonic_properties(spectra.debye_solid_dataset(debye_temperature_K=300,
+    ok = harmonic.harmonic_property_rows(spectra.debye_solid_dataset(debye_temperature_K=300,
                                       temperature_K=300, points_below_debye=500), system="y")
     assert not any("integrates to" in c for c in ok.cautions)
 
@@ -562,7 +562,7 @@ def test_equipartition_values_have_no_segment_error() -> None:
     """Classical harmonic E = dof kT and Cv = dof k are exact once each segment is normalised to the dof."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                      points_below_debye=1000, segment_scatter=0.05, seed=11)
-    result = harmonic.harmonic_properties(ds, system="e", properties=["energy", "heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="e", properties=["energy", "heat_capacity"],
                                           include_msd=False)
     for name in ("energy", "heat_capacity"):
         row = _one(result, property=name, basis="per_mole_atoms")
@@ -579,7 +579,7 @@ def test_spectrum_diagnostics_become_cautions() -> None:
         {"check": "resolution", "status": "warning", "message": "resolution 83 cm-1 is coarse"},
         {"check": "aliasing", "status": "ok", "message": "fine"},
     ])
-    cautions = harmonic.harmonic_properties(ds, system="d", include_msd=False).cautions
+    cautions = harmonic.harmonic_property_rows(ds, system="d", include_msd=False).cautions
     assert "Spectrum diagnostic 'resolution': resolution 83 cm-1 is coarse" in cautions
     assert not any("aliasing" in c for c in cautions)
 
@@ -587,7 +587,7 @@ def test_spectrum_diagnostics_become_cautions() -> None:
 def test_single_segment_gives_no_standard_error() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                      points_below_debye=500, n_segments=1)
-    result = harmonic.harmonic_properties(ds, system="one", properties=["entropy"], include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="one", properties=["entropy"], include_msd=False)
     row = _one(result, property="entropy", basis="per_mole_atoms")
     assert math.isnan(row.quantum_se) and math.isnan(row.correction_se)
     assert "one segment: no standard error" in row.note

@@ -67,24 +67,6 @@ TEXT_COLUMNS: tuple[str, ...] = (
 #: the value bases of a table
 BASES = ("per_mole_molecules", "per_mole_atoms", "per_system")
 
-#: cautions that hold for every harmonic number qcorr reports
-HARMONIC_CAUTIONS: tuple[str, ...] = (
-    ("Harmonic approximation: every spectral component is treated as an independent harmonic "
-     "mode (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, 2375 (1983)); the corrections "
-     "are first-order fixes to classical MD values, not a quantum simulation."),
-    ("Anharmonic modes: classical MD frequencies are anharmonic and red-shifted; strongly "
-     "anharmonic, diffusive, hindered-rotor or tunnelling motion is not described correctly."),
-    ("Thermostat artefacts: local stochastic thermostats (Langevin, Andersen) broaden bands "
-     "and change the low-frequency spectrum; prefer NVE or weakly coupled global thermostats "
-     "for the production run that feeds the spectrum."),
-    ("Constrained bonds: modes removed by constraints are absent from the spectrum; their "
-     "zero-point energy and quantum contributions appear only through the frozen-bond add-on "
-     "rows, from user-given wavenumbers."),
-    ("These results support, not replace, validated practice: compare with experiment or "
-     "path-integral simulations where available."),
-)
-
-
 @dataclass
 class TableRow:
     """One row of the property table (see :data:`COLUMNS`); None = empty cell."""

@@ -33,7 +33,7 @@ Assumptions and cautions
 Layout of the table: ``DEVELOPERS.md`` ("The property table").  The integrals are in
 :mod:`qcorr.thermo.spectrum_integrals`, the standard errors in
 :mod:`qcorr.thermo.segment_statistics`, the checks of each group in
-:mod:`qcorr.thermo.spectrum_groups`.
+:mod:`qcorr.thermo.spectrum_groups`, the rows of one group in :mod:`qcorr.thermo.harmonic_rows`.
 
 References
 ----------
@@ -43,21 +43,21 @@ References
 
 from __future__ import annotations
 
+import json
 import math
 import os
+import warnings
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 import xarray as xr
 
-from qcorr import constants as C
-from qcorr.errors import ConfigError
-from qcorr.outputs.table import BASES, TableRow
-from qcorr.thermo.segment_statistics import (
-    normalised_segments,
-    segment_effective_count,
-    segment_standard_error,
-)
+from qcorr.errors import ConfigError, QcorrWarning
+from qcorr.outputs.table import TableRow, rows_to_frame
+from qcorr.thermo.harmonic_rows import frozen_bond_rows, msd_rows, property_rows
+from qcorr.thermo.segment_statistics import segment_effective_count, segment_standard_error
 from qcorr.thermo.spectrum_groups import (
     DEFAULT_ZERO_FREQUENCY_THRESHOLD,
     GroupSpectrum,
@@ -65,216 +65,106 @@ from qcorr.thermo.spectrum_groups import (
     check_nonnegative,
     spectrum_diagnostic_cautions,
     spectrum_groups,
+    spectrum_source,
     spectrum_temperature,
+    system_name,
     zero_frequency_check,
-)
-from qcorr.thermo.spectrum_integrals import (
-    frozen_bond_integrals,
-    mean_square_displacement,
-    mode_integrals,
-    to_physical,
-    unit_of,
 )
 from qcorr.thermo.weights import PROPERTIES, HarmonicProperty, get_property
 
+#: cautions that hold for every harmonic number qcorr reports
+HARMONIC_CAUTIONS: tuple[str, ...] = (
+    ("Harmonic approximation: every spectral component is treated as an independent harmonic "
+     "mode (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, 2375 (1983)); the corrections "
+     "are first-order fixes to classical MD values, not a quantum simulation."),
+    ("Anharmonic modes: classical MD frequencies are anharmonic and red-shifted; strongly "
+     "anharmonic, diffusive, hindered-rotor or tunnelling motion is not described correctly."),
+    ("Thermostat artefacts: local stochastic thermostats (Langevin, Andersen) broaden bands "
+     "and change the low-frequency spectrum; prefer NVE or weakly coupled global thermostats "
+     "for the production run that feeds the spectrum."),
+    ("Constrained bonds: modes removed by constraints are absent from the spectrum; their "
+     "zero-point energy and quantum contributions appear only through the frozen-bond add-on "
+     "rows, from user-given wavenumbers."),
+    ("These results support, not replace, validated practice: compare with experiment or "
+     "path-integral simulations where available."),
+)
 
-def _group_rows(
-    group: GroupSpectrum,
-    *,
-    system: str,
-    temperature_K: float,
-    spectrum_temperature_K: float,
-    properties: list[HarmonicProperty],
-    md_values: dict[tuple[str, str], float],
-    k_eff: float,
-    check: ZeroFrequencyCheck,
-) -> list[TableRow]:
-    rows: list[TableRow] = []
-    x = group.wavenumber_cm
-    extrapolated = not math.isclose(temperature_K, spectrum_temperature_K, rel_tol=1e-12)
-    scan_note = (
-        f"harmonic extrapolation of the spectrum measured at {spectrum_temperature_K:g} K"
-        if extrapolated
-        else ""
-    )
-    segments = normalised_segments(x, group.vdos_segments, float(np.trapezoid(group.vdos, x)))
-    for prop in properties:
-        cl, qu, co = mode_integrals(x, group.vdos, temperature_K, prop)
-        cl_s, qu_s, co_s = mode_integrals(x, segments, temperature_K, prop)
-        se = {
-            "classical": segment_standard_error(cl_s, k_eff),
-            "quantum": segment_standard_error(qu_s, k_eff),
-            "correction": segment_standard_error(co_s, k_eff),
-        }
-        md = md_values.get((group.name, prop.name))
-        for basis in BASES:
-
-            def conv(value, prop=prop, basis=basis):
-                return float(to_physical(value, prop, temperature_K, basis,
-                                         group.molecule_count, group.atom_count))
-
-            notes = [scan_note] if scan_note else []
-            row = TableRow(
-                system=system, group=group.name, method="harmonic", property=prop.name,
-                temperature_K=temperature_K, basis=basis, unit=unit_of(prop, basis),
-                correction=conv(co), correction_se=conv(se["correction"]),
-            )
-            if md is not None and not extrapolated:
-                # md value is per mole of molecules in the molar unit
-                per_molecule_to_basis = {
-                    "per_mole_molecules": 1.0,
-                    "per_mole_atoms": group.molecule_count / group.atom_count,
-                    "per_system": group.molecule_count / C.avogadro_per_mol,
-                }[basis]
-                row.classical = md * per_molecule_to_basis
-                row.quantum = row.classical + row.correction
-                row.quantum_se = row.correction_se
-                row.classical_source = "md_value"
-                notes.append("quantum = MD value + correction; its standard error excludes the MD value's own")
-            elif prop.log_singular and check.diffusing:
-                notes.append(
-                    f"absolute harmonic {prop.name} refused: diffusing group ({check.describe()}); "
-                    "use 'qcorr liquid' (2PT) for absolute values; the correction is valid"
-                )
-            else:
-                row.classical, row.quantum = conv(cl), conv(qu)
-                row.classical_se, row.quantum_se = conv(se["classical"]), conv(se["quantum"])
-                row.classical_source = "harmonic_model"
-                if md is not None:
-                    notes.append("MD value not used: it belongs to the spectrum's temperature")
-                if check.diffusing:
-                    notes.append(
-                        "harmonic-model value of a diffusing group; prefer --md-value plus the correction"
-                    )
-            if np.isnan(se["correction"]):
-                notes.append("one segment: no standard error")
-            row.note = "; ".join(notes)
-            rows.append(row)
-    return rows
+#: spectrum-file attributes copied into a harmonic table's provenance
+_SPECTRUM_PROVENANCE = (
+    "temperature_K", "qcorr_version", "command_line", "segment_frames", "segment_length_ps",
+    "segment_overlap", "taper", "resolution_wavenumber", "nyquist_wavenumber", "velocity_source",
+    "frames_used",
+)
 
 
-def _msd_rows(
-    group: GroupSpectrum, *, system: str, temperature_K: float, k_eff: float, check: ZeroFrequencyCheck,
-    spectrum_temperature_K: float,
-) -> list[TableRow]:
-    base = {"system": system, "group": group.name, "method": "harmonic",
-            "temperature_K": temperature_K, "basis": "atom_mean"}
-    if check.diffusing:
-        note = (f"refused: diffusing group ({check.describe()}); the harmonic mean-square "
-                "displacement needs bound motion")
-        return [
-            TableRow(property="mean_square_displacement", unit="angstrom^2", note=note, **base),
-            TableRow(property="mean_square_displacement_ratio", unit="1", note=note, **base),
-        ]
-    x = group.wavenumber_cm
-    q, c = mean_square_displacement(x, group.vdos, temperature_K, group.group_mass_g_mol)
-    segments = normalised_segments(x, group.vdos_segments, float(np.trapezoid(group.vdos, x)))
-    q_s, c_s = mean_square_displacement(x, segments, temperature_K, group.group_mass_g_mol)
-    q, c = float(q), float(c)
-    note = "mass-weighted mean over the group's atoms of <|u|^2> (= 3 <u_x^2>)"
-    ratio_note = "quantum / classical mean-square displacement"
-    if not math.isclose(temperature_K, spectrum_temperature_K, rel_tol=1e-12):
-        scan = f"; harmonic extrapolation of the spectrum measured at {spectrum_temperature_K:g} K"
-        note += scan
-        ratio_note += scan
-    return [
-        TableRow(
-            property="mean_square_displacement", unit="angstrom^2", classical=c, quantum=q,
-            correction=q - c, classical_se=float(segment_standard_error(c_s, k_eff)),
-            quantum_se=float(segment_standard_error(q_s, k_eff)),
-            correction_se=float(segment_standard_error(q_s - c_s, k_eff)),
-            classical_source="harmonic_model", note=note, **base,
-        ),
-        TableRow(
-            property="mean_square_displacement_ratio", unit="1", classical=1.0, quantum=q / c,
-            correction=q / c - 1.0, classical_se=0.0,
-            quantum_se=float(segment_standard_error(q_s / c_s, k_eff)),
-            correction_se=float(segment_standard_error(q_s / c_s, k_eff)),
-            classical_source="harmonic_model", note=ratio_note,
-            **base,
-        ),
-    ]
-
-
-def _frozen_rows(
-    group: GroupSpectrum, wavenumbers: list[float], *, system: str, temperature_K: float,
-    properties: list[HarmonicProperty],
-) -> list[TableRow]:
-    rows = []
-    listed = ",".join(f"{w:g}" for w in wavenumbers)
-    for prop in properties:
-        _, qu, co = frozen_bond_integrals(wavenumbers, temperature_K, prop)
-        total_q = qu * group.molecule_count  # whole group, in k or kT units
-        total_c = co * group.molecule_count
-        for basis in BASES:
-            rows.append(
-                TableRow(
-                    system=system, group=group.name, method="frozen_bond_addon", property=prop.name,
-                    temperature_K=temperature_K, basis=basis, unit=unit_of(prop, basis),
-                    classical=0.0,
-                    quantum=float(to_physical(total_q, prop, temperature_K, basis,
-                                              group.molecule_count, group.atom_count)),
-                    correction=float(to_physical(total_c, prop, temperature_K, basis,
-                                                 group.molecule_count, group.atom_count)),
-                    classical_source="constrained_in_md",
-                    note=(f"harmonic modes at the user-given wavenumbers {listed} cm-1 per molecule "
-                          "(constrained in the MD, absent from the spectrum); add to the group's "
-                          "harmonic rows; exact given the wavenumbers, no standard error"),
-                )
-            )
-    return rows
+def _json_number(value: float) -> float | None:
+    """JSON has no NaN: an undefined number becomes null."""
+    value = float(value)
+    return value if math.isfinite(value) else None
 
 
 @dataclass
 class PropertyResult:
-    """Rows, cautions and per-group diagnostics of :func:`harmonic_properties`."""
+    """Rows, cautions and per-group diagnostics of :func:`harmonic_property_rows`."""
 
     rows: list[TableRow]
     cautions: list[str]
     groups: dict[str, dict]
 
 
-def harmonic_properties(
+def _checked_options(
+    temperatures_K: Sequence[float] | None,
+    properties: Sequence[str] | None,
+    md_values: Mapping[tuple[str, str], float] | None,
+    frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None,
+    zero_frequency_threshold: float,
+) -> tuple[list[float] | None, list[HarmonicProperty], dict, dict]:
+    """Check the options that do not depend on the spectrum (messages name the options)."""
+    temps = None if not temperatures_K else [float(t) for t in temperatures_K]
+    for t in temps or []:
+        if not (math.isfinite(t) and t > 0):
+            raise ConfigError(f"--temperatures: {t:g} K is not a positive temperature; give values > 0 K")
+    props = [get_property(n, "--properties") for n in (properties or list(PROPERTIES))]
+    if not (math.isfinite(zero_frequency_threshold) and zero_frequency_threshold > 0):
+        raise ConfigError(
+            f"--zero-frequency-threshold: {zero_frequency_threshold} must be a positive fraction"
+        )
+    md = {(str(g), str(p)): float(v) for (g, p), v in (md_values or {}).items()}
+    for (gname, pname), value in md.items():
+        get_property(pname, "--md-value")
+        if not math.isfinite(value):
+            raise ConfigError(f"--md-value {gname}:{pname}: value {value} is not a finite number")
+    frozen = {str(g): [float(w) for w in wns] for g, wns in (frozen_bond_wavenumbers_cm or {}).items()}
+    for gname, wns in frozen.items():
+        if not wns or not all(math.isfinite(w) and w > 0 for w in wns):
+            raise ConfigError(
+                f"--frozen-bond-wavenumbers {gname}: wavenumbers must be positive numbers in cm-1"
+            )
+    return temps, props, md, frozen
+
+
+def harmonic_property_rows(
     ds: xr.Dataset,
     *,
     system: str,
-    path: str | os.PathLike[str] = "<in memory>",
-    temperatures_K: list[float] | None = None,
-    properties: list[str] | None = None,
-    md_values: dict[tuple[str, str], float] | None = None,
-    frozen_bond_wavenumbers: dict[str, list[float]] | None = None,
+    source: str = "<in memory>",
+    temperatures_K: Sequence[float] | None = None,
+    properties: Sequence[str] | None = None,
+    md_values: Mapping[tuple[str, str], float] | None = None,
+    frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None = None,
     zero_frequency_threshold: float = DEFAULT_ZERO_FREQUENCY_THRESHOLD,
     include_msd: bool = True,
 ) -> PropertyResult:
     """All harmonic properties of every group of a spectrum Dataset, as table rows.
 
-    Parameters
-    ----------
-    ds : xarray.Dataset
-        Spectrum following the contract (``qcorr.spectra.spectrum_file.read_spectrum``).
-    system : str
-        System identifier for the ``system`` column.
-    path : str or path-like
-        File name, for messages.
-    temperatures_K : list of float, optional
-        Temperatures, K (> 0); default: the spectrum's ``temperature_K``.  Other
-        temperatures are harmonic extrapolations (noted in each row).
-    properties : list of str, optional
-        Property names (:data:`qcorr.thermo.weights.PROPERTIES`); default all.
-    md_values : dict, optional
-        ``{(group, property): value}``, the classical MD value per mole of
-        molecules in the table's molar unit (J/(mol K) or kJ/mol), at the
-        spectrum's temperature.
-    frozen_bond_wavenumbers : dict, optional
-        ``{group: [wavenumber cm^-1, ...]}`` per molecule.
-    zero_frequency_threshold : float
-        See :func:`zero_frequency_check`.
-    include_msd : bool
-        Add mean-square-displacement rows.
+    The arguments are those of :func:`harmonic_properties` (which calls this and makes
+    the DataFrame); *system* must be given and *source* is the name used in messages.
 
     Returns
     -------
     PropertyResult
+        The rows, the cautions that depend on the spectrum (not
+        :data:`HARMONIC_CAUTIONS`) and the per-group diagnostics (JSON-ready: NaN as None).
 
     Raises
     ------
@@ -283,34 +173,20 @@ def harmonic_properties(
     SpectrumFileError
         Bad spectrum content (negative density beyond noise, bad counts, bad grid).
     """
-    t0 = spectrum_temperature(ds, path)
-    temps = [t0] if not temperatures_K else [float(t) for t in temperatures_K]
-    for t in temps:
-        if not (math.isfinite(t) and t > 0):
-            raise ConfigError(f"--temperatures: {t:g} K is not a positive temperature; give values > 0 K")
-    props = [get_property(n, "--properties") for n in (properties or list(PROPERTIES))]
-    md_values = dict(md_values or {})
-    frozen = dict(frozen_bond_wavenumbers or {})
-    if not (math.isfinite(zero_frequency_threshold) and zero_frequency_threshold > 0):
-        raise ConfigError(
-            f"--zero-frequency-threshold: {zero_frequency_threshold} must be a positive fraction"
-        )
-    groups = spectrum_groups(ds, path)
+    temps, props, md_values, frozen = _checked_options(
+        temperatures_K, properties, md_values, frozen_bond_wavenumbers_cm, zero_frequency_threshold
+    )
+    t0 = spectrum_temperature(ds, source)
+    temps = temps or [t0]
+    groups = spectrum_groups(ds, source)
     names = [g.name for g in groups]
-    for (gname, pname), value in md_values.items():
+    for gname, _ in md_values:
         if gname not in names:
-            raise ConfigError(f"--md-value: no group '{gname}' in spectrum file '{path}'; groups: {', '.join(names)}")
-        get_property(pname, "--md-value")
-        if not math.isfinite(value):
-            raise ConfigError(f"--md-value {gname}:{pname}: value {value} is not a finite number")
-    for gname, wns in frozen.items():
+            raise ConfigError(f"--md-value: no group '{gname}' in spectrum file '{source}'; groups: {', '.join(names)}")
+    for gname in frozen:
         if gname not in names:
             raise ConfigError(
-                f"--frozen-bond-wavenumbers: no group '{gname}' in spectrum file '{path}'; groups: {', '.join(names)}"
-            )
-        if not wns or not all(math.isfinite(w) and w > 0 for w in wns):
-            raise ConfigError(
-                f"--frozen-bond-wavenumbers {gname}: wavenumbers must be positive numbers in cm-1"
+                f"--frozen-bond-wavenumbers: no group '{gname}' in spectrum file '{source}'; groups: {', '.join(names)}"
             )
     k_eff = segment_effective_count(ds)
     rows: list[TableRow] = []
@@ -320,7 +196,7 @@ def harmonic_properties(
         cautions.append("The spectrum has fewer than two segments: no standard errors.")
     cautions += spectrum_diagnostic_cautions(ds)
     for g in groups:
-        where = f"spectrum file '{os.fspath(path)}', group '{g.name}'"
+        where = f"spectrum file '{source}', group '{g.name}'"
         bin_se = segment_standard_error(g.vdos_segments, k_eff)
         check_nonnegative(g.wavenumber_cm, g.vdos, bin_se, where)
         check = zero_frequency_check(
@@ -329,46 +205,176 @@ def harmonic_properties(
         )
         info[g.name] = {
             "diffusing": check.diffusing,
-            "zero_frequency_density_cm": check.zero_frequency_density,
-            "zero_frequency_se_cm": check.zero_frequency_se,
-            "mean_wavenumber_cm": check.mean_wavenumber,
-            "zero_frequency_ratio": check.ratio,
+            "zero_frequency_density_cm": _json_number(check.zero_frequency_density),
+            "zero_frequency_se_cm": _json_number(check.zero_frequency_se),
+            "mean_wavenumber_cm": _json_number(check.mean_wavenumber),
+            "zero_frequency_ratio": _json_number(check.ratio),
             "zero_frequency_threshold": check.threshold,
             "degrees_of_freedom": g.degrees_of_freedom,
             "molecule_count": g.molecule_count,
             "atom_count": g.atom_count,
             "effective_segment_count": k_eff,
         }
-        if check.diffusing:
-            cautions.append(
-                f"Group '{g.name}' diffuses ({check.describe()}): absolute harmonic entropy, free "
-                "energy and mean-square displacement are refused; use 'qcorr liquid' (2PT). The "
-                "corrections are reported."
-            )
-        integral = float(np.trapezoid(g.vdos, g.wavenumber_cm))
-        if abs(integral - g.degrees_of_freedom) > 1e-3 * g.degrees_of_freedom:
-            cautions.append(
-                f"Group '{g.name}': the spectrum integrates to {integral:.6g}, not to its "
-                f"{g.degrees_of_freedom:g} degrees of freedom; values follow the spectrum as stored."
-            )
-        if math.isfinite(g.kinetic_temperature_K) and abs(g.kinetic_temperature_K - t0) > 0.02 * t0:
-            cautions.append(
-                f"Group '{g.name}': kinetic temperature {g.kinetic_temperature_K:.4g} K differs from "
-                f"the stated {t0:g} K by more than 2 %; check the degrees of freedom and equilibration."
-            )
+        cautions += _group_cautions(g, check, t0)
         for t in temps:
-            rows += _group_rows(
+            rows += property_rows(
                 g, system=system, temperature_K=t, spectrum_temperature_K=t0, properties=props,
                 md_values=md_values, k_eff=k_eff, check=check,
             )
             if include_msd:
-                rows += _msd_rows(g, system=system, temperature_K=t, k_eff=k_eff, check=check,
+                rows += msd_rows(g, system=system, temperature_K=t, k_eff=k_eff, check=check,
                                   spectrum_temperature_K=t0)
             if g.name in frozen:
-                rows += _frozen_rows(g, frozen[g.name], system=system, temperature_K=t, properties=props)
+                rows += frozen_bond_rows(g, frozen[g.name], system=system, temperature_K=t, properties=props)
     if any(not math.isclose(t, t0, rel_tol=1e-12) for t in temps):
         cautions.append(
             f"Temperature scan: the spectrum was measured at {t0:g} K; values at other temperatures "
             "assume it does not change with temperature (harmonic assumption)."
         )
     return PropertyResult(rows=rows, cautions=cautions, groups=info)
+
+
+def _group_cautions(g: GroupSpectrum, check: ZeroFrequencyCheck, t0: float) -> list[str]:
+    """Cautions about one group: diffusing, integral off its dof, kinetic temperature off."""
+    cautions = []
+    if check.diffusing:
+        cautions.append(
+            f"Group '{g.name}' diffuses ({check.describe()}): absolute harmonic entropy, free "
+            "energy and mean-square displacement are refused; use 'qcorr liquid' (2PT). The "
+            "corrections are reported."
+        )
+    integral = float(np.trapezoid(g.vdos, g.wavenumber_cm))
+    if abs(integral - g.degrees_of_freedom) > 1e-3 * g.degrees_of_freedom:
+        cautions.append(
+            f"Group '{g.name}': the spectrum integrates to {integral:.6g}, not to its "
+            f"{g.degrees_of_freedom:g} degrees of freedom; values follow the spectrum as stored."
+        )
+    if math.isfinite(g.kinetic_temperature_K) and abs(g.kinetic_temperature_K - t0) > 0.02 * t0:
+        cautions.append(
+            f"Group '{g.name}': kinetic temperature {g.kinetic_temperature_K:.4g} K differs from "
+            f"the stated {t0:g} K by more than 2 %; check the degrees of freedom and equilibration."
+        )
+    return cautions
+
+
+def _spectrum_provenance(ds: xr.Dataset) -> dict[str, object]:
+    """The spectrum file's settings and provenance worth keeping beside a table."""
+    out: dict[str, object] = {key: ds.attrs[key] for key in _SPECTRUM_PROVENANCE if key in ds.attrs}
+    for key in ("input_files", "diagnostics"):
+        try:
+            out[key] = json.loads(ds.attrs[key])
+        except (KeyError, TypeError, ValueError):
+            out[key] = ds.attrs.get(key)
+    return out
+
+
+def harmonic_properties(
+    ds: xr.Dataset,
+    *,
+    system: str | None = None,
+    temperatures_K: Sequence[float] | None = None,
+    properties: Sequence[str] | None = None,
+    md_values: Mapping[tuple[str, str], float] | None = None,
+    frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None = None,
+    zero_frequency_threshold: float = DEFAULT_ZERO_FREQUENCY_THRESHOLD,
+    include_msd: bool = True,
+    source: str | os.PathLike[str] | None = None,
+) -> pd.DataFrame:
+    """Harmonic quantum corrections and properties of every group of a spectrum, as a table.
+
+    What ``qcorr properties`` computes: every property of
+    :data:`qcorr.thermo.weights.PROPERTIES` with harmonic weighting functions (Berens et
+    al. [1]_), per group, temperature and basis, with standard errors from the
+    per-segment spectra.  Cautions that concern this spectrum are also issued as
+    :class:`qcorr.errors.QcorrWarning`.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Spectrum Dataset following the spectrum-file contract (``DEVELOPERS.md``), e.g.
+        from :func:`qcorr.spectra.spectrum_file.read_spectrum`.
+    system : str, optional
+        Value of the ``system`` column; default the stem of the spectrum's file name
+        (``"spectrum"`` for a Dataset made in memory).
+    temperatures_K : sequence of float, optional
+        Temperatures in K (> 0) at which to evaluate the spectrum; default the
+        spectrum's ``temperature_K``.  Other temperatures are harmonic extrapolations
+        (noted in each row and in the cautions).
+    properties : sequence of str, optional
+        Names from :data:`qcorr.thermo.weights.PROPERTIES`; default all.
+    md_values : mapping, optional
+        ``{(group, property): value}``: the classical MD value per mole of molecules, in
+        J/(mol K) for heat capacity and entropy and kJ/mol for energies, at the
+        spectrum's temperature; the quantum value is then this plus the correction.
+    frozen_bond_wavenumbers_cm : mapping, optional
+        ``{group: [wavenumber in cm^-1, ...]}``: bonds constrained in the MD, per molecule
+        of the group; reported on separate rows (method ``frozen_bond_addon``).
+    zero_frequency_threshold : float
+        A group diffuses when S(0) exceeds this fraction of dof/<wavenumber> (and 3
+        standard errors); its absolute entropy, free energy and mean-square
+        displacement are then refused (empty cells, with a note).
+    include_msd : bool
+        Add the mean-square-displacement rows (Å², basis ``atom_mean``).
+    source : str or path-like, optional
+        The spectrum's file name, for messages, the default *system* and the table's
+        provenance; default the file xarray read *ds* from, if any.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The property table (columns :data:`qcorr.outputs.table.TABLE_COLUMNS`, units
+        in its ``unit`` column).  ``attrs`` holds the provenance that
+        :func:`qcorr.outputs.table.write_table` writes to the JSON sidecar: ``method``,
+        ``input_spectrum`` (``{"name": source}``; ``qcorr properties`` adds the file's
+        size and SHA-256), ``spectrum_provenance``, ``options``, ``md_value_basis``,
+        ``standard_errors``, ``groups`` (per-group diagnostics) and ``cautions``
+        (:data:`HARMONIC_CAUTIONS` first).
+
+    Raises
+    ------
+    ConfigError
+        A bad option (the message names the ``qcorr properties`` option it matches):
+        unknown property or group, temperature <= 0, wavenumber <= 0, blank system.
+    SpectrumFileError
+        Bad spectrum content (negative density beyond noise, bad counts, bad grid).
+
+    References
+    ----------
+    .. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, J. Chem. Phys. 79,
+       2375 (1983).
+    """
+    name = spectrum_source(ds, source)
+    system = system_name(system, name)
+    result = harmonic_property_rows(
+        ds, system=system, source=name, temperatures_K=temperatures_K, properties=properties,
+        md_values=md_values, frozen_bond_wavenumbers_cm=frozen_bond_wavenumbers_cm,
+        zero_frequency_threshold=zero_frequency_threshold, include_msd=include_msd,
+    )
+    frame = rows_to_frame(result.rows)
+    frame.attrs = {
+        "method": "harmonic weighting functions (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, "
+                  "2375 (1983))",
+        "input_spectrum": {"name": name},
+        "spectrum_provenance": _spectrum_provenance(ds),
+        "options": {
+            "system": system,
+            "temperatures_K": [float(t) for t in temperatures_K] if temperatures_K
+            else [float(ds.attrs["temperature_K"])],
+            "properties": list(properties) if properties else list(PROPERTIES),
+            "md_values": [{"group": g, "property": p, "value": float(v)}
+                          for (g, p), v in (md_values or {}).items()],
+            "frozen_bond_wavenumbers_cm": {g: [float(w) for w in wns]
+                                           for g, wns in (frozen_bond_wavenumbers_cm or {}).items()},
+            "zero_frequency_threshold": zero_frequency_threshold,
+            "include_msd": include_msd,
+        },
+        "md_value_basis": "per mole of molecules, J/(mol K) or kJ/mol, at the spectrum's temperature",
+        "standard_errors": "per-segment spectra (block averaging); s / sqrt(K_eff) with Welch's "
+                           "(IEEE Trans. Audio Electroacoust. 15, 70 (1967)) effective number of "
+                           "independent overlapping segments",
+        "groups": result.groups,
+        "cautions": list(HARMONIC_CAUTIONS) + result.cautions,
+    }
+    for caution in result.cautions:
+        warnings.warn(caution, QcorrWarning, stacklevel=2)
+    return frame

@@ -7,7 +7,8 @@
 * :func:`zero_frequency_check` decides whether a group diffuses (S(0) clearly
   above zero): a diffusing group is not a set of oscillators, so its absolute
   harmonic entropy, free energy and mean-square displacement are refused;
-* :func:`spectrum_diagnostic_cautions` turns the file's own diagnostics into cautions.
+* :func:`spectrum_diagnostic_cautions` turns the file's own diagnostics into cautions;
+* :func:`spectrum_source` and :func:`system_name` name the spectrum in messages and tables.
 """
 
 from __future__ import annotations
@@ -16,12 +17,13 @@ import json
 import math
 import os
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import xarray as xr
 from numpy.typing import ArrayLike, NDArray
 
-from qcorr.errors import SpectrumFileError
+from qcorr.errors import ConfigError, SpectrumFileError
 
 FloatArray = NDArray[np.float64]
 
@@ -227,3 +229,42 @@ def spectrum_diagnostic_cautions(ds: xr.Dataset) -> list[str]:
         ]
     except (TypeError, ValueError, KeyError, AttributeError):
         return ["The spectrum file's diagnostics attribute could not be read."]
+
+
+def spectrum_source(ds: xr.Dataset, source: str | os.PathLike[str] | None = None) -> str:
+    """The name a spectrum Dataset goes by in messages and provenance.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Spectrum Dataset.
+    source : str or path-like, optional
+        Given name (e.g. the file name as typed on the command line).
+
+    Returns
+    -------
+    str
+        *source*; else the file xarray read the Dataset from (``ds.encoding["source"]``);
+        else ``"<in memory>"``.
+    """
+    if source is not None:
+        return os.fspath(source)
+    found = ds.encoding.get("source")
+    return os.fspath(found) if found else "<in memory>"
+
+
+def system_name(system: str | None, source: str) -> str:
+    """The ``system`` column's value: *system*, or the stem of the spectrum's file name.
+
+    A Dataset made in memory (source ``"<in memory>"``) is called ``"spectrum"``.
+
+    Raises
+    ------
+    ConfigError
+        If *system* is given but blank (names ``--system``).
+    """
+    if system is None:
+        return "spectrum" if source == "<in memory>" else Path(source).stem
+    if not str(system).strip():
+        raise ConfigError("--system: give a non-empty identifier")
+    return str(system)
