@@ -48,6 +48,19 @@ def self_diffusion_from_zero_frequency(
     return s0_s * C.boltzmann_J_per_K * temperature_K / (12.0 * mass_kg * molecule_count)
 
 
+def zero_frequency_from_self_diffusion(
+    self_diffusion_m2_per_s: float, molecule_count: float, temperature_K: float, mass_u: float
+) -> float:
+    """Translational DoS at ν = 0 per unit wavenumber (cm) of N molecules with self-diffusion D.
+
+    The inverse of :func:`self_diffusion_from_zero_frequency`: Green–Kubo
+    ``S̃(0) = c · 12 m N D / kT`` (Lin, Blanco, Goddard [1]_), with D in m²/s, T in K,
+    the molecular mass m in u and c in cm/s.
+    """
+    return (self_diffusion_m2_per_s * 12.0 * mass_u * C.atomic_mass_kg * molecule_count
+            / (C.boltzmann_J_per_K * temperature_K) * C.speed_of_light_cm_per_s)
+
+
 def normalized_diffusivity(
     zero_frequency_dos_cm: float,
     molecule_count: float,
