@@ -16,9 +16,9 @@ from qcorr.errors import ConfigError
 from qcorr.outputs import table
 from qcorr.safe_write import atomic_path
 from qcorr.spectra.spectrum_file import read_spectrum
+from qcorr.thermo import twophase_table
 from qcorr.thermo.hard_sphere_gas import GAS_VOLUME_CHOICES, HARD_SPHERE_FORMS
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES
-from qcorr.thermo.twophase_table import two_phase_properties, two_phase_split_spectra
 
 NAME = "liquid"
 HELP = "absolute entropy, free energy, energy, heat capacity of liquids by the two-phase model (2PT)"
@@ -135,30 +135,18 @@ def run(args: argparse.Namespace) -> int:
     }
     md_energies = parse_md_energies(args.md_energy)
     ds = read_spectrum(spectrum_path)
-    frame = two_phase_properties(ds, system=args.system, md_energies_kJ_per_mol=md_energies, **options)
+    frame = twophase_table.two_phase_properties(ds, system=args.system, md_energies_kJ_per_mol=md_energies, **options)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
                    "input_spectrum": table.file_record(spectrum_path)}
     for name, info in frame.attrs["groups"].items():
-        print(_diffusion_line(name, info), file=sys.stderr)
+        print(f"qcorr: {twophase_table.diffusion_summary(name, info)}", file=sys.stderr)
     if args.split_output is not None:
-        split = two_phase_split_spectra(ds, **options)
+        split = twophase_table.two_phase_split_spectra(ds, **options)
         with atomic_path(args.split_output) as tmp:
             split.to_netcdf(tmp, engine="h5netcdf")
     table.write_table(frame, output)
     if not args.quiet:
-        print(table.format_table(frame, "per_mole_molecules"))
-        print()
-        print("2PT values per mole of molecules. Cautions:")
-        for caution in frame.attrs["cautions"]:
-            print(f"- {caution}")
+        print(table.summary_text(frame, "2PT values per mole of molecules."))
         print(f"wrote {output} and {table.sidecar_path(output)}")
     return 0
 
-
-def _diffusion_line(name: str, info: dict) -> str:
-    """The per-group summary printed on stderr: diffusion coefficients (m2/s) and fluidicities."""
-    d = [float("nan") if v is None else v for v in (info["self_diffusion_from_spectrum_m2_per_s"],
-                                                    info["self_diffusion_from_msd_m2_per_s"])]
-    return (f"qcorr: group '{name}': D from S(0) = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s; "
-            + ", ".join(f"{comp} f = {c['fluidicity']:.4g}"
-                        for comp, c in info["components"].items() if comp != "vibration"))

@@ -128,10 +128,6 @@ def run(args: argparse.Namespace) -> int:
                    "input_spectrum": table.file_record(spectrum_path)}
     table.write_table(frame, output)
     if not args.quiet:
-        print(table.format_table(frame, "per_mole_molecules"))
-        print()
-        print("Values per mole of molecules (all bases in the CSV). Cautions:")
-        for caution in frame.attrs["cautions"]:
-            print(f"- {caution}")
+        print(table.summary_text(frame, "Values per mole of molecules (all bases in the CSV)."))
         print(f"wrote {output} and {table.sidecar_path(output)}")
     return 0

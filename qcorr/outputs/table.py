@@ -388,3 +388,11 @@ def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
     if shown.empty:
         return "(no rows)"
     return shown.to_string(index=False)
+
+
+def summary_text(frame: pd.DataFrame, heading: str, basis: str = "per_mole_molecules") -> str:
+    """What the property commands print: the table of one basis (:func:`format_table`),
+    then *heading* and the cautions of ``frame.attrs``, one per line."""
+    lines = [format_table(frame, basis), "", f"{heading} Cautions:"]
+    lines += [f"- {caution}" for caution in frame.attrs.get("cautions", [])]
+    return "\n".join(lines)

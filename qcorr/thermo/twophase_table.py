@@ -480,3 +480,20 @@ def two_phase_split_spectra(
                 "wavenumber": ("wavenumber", wavenumber, {"units": "cm-1", "long_name": "wavenumber"})},
         attrs={"Conventions": "CF-1.11", "qcorr_file_kind": "two_phase_split"},
     )
+
+
+def diffusion_summary(group: str, info: Mapping) -> str:
+    """One line on a group's diffusion: D from S(0) and from the MSD (m²/s), and the fluidicities.
+
+    Parameters
+    ----------
+    group : str
+        Group name.
+    info : mapping
+        The group's entry of ``attrs["groups"]`` of a :func:`two_phase_properties` table.
+    """
+    d = [float("nan") if v is None else v for v in (info["self_diffusion_from_spectrum_m2_per_s"],
+                                                    info["self_diffusion_from_msd_m2_per_s"])]
+    return (f"group '{group}': D from S(0) = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s; "
+            + ", ".join(f"{comp} f = {c['fluidicity']:.4g}"
+                        for comp, c in info["components"].items() if comp != "vibration"))
