@@ -12,6 +12,11 @@ defined); floats are written with full double precision.  The JSON sidecar
 SHA-256), the qcorr and library versions, the options, and the cautions that
 apply to every number in the table.  Both files are written atomically: either
 both appear complete, or neither is touched.
+
+In memory a table is a :class:`pandas.DataFrame` with exactly :data:`TABLE_COLUMNS`
+and its provenance in ``DataFrame.attrs``: :func:`write_table` writes the attrs as the
+sidecar, :func:`read_table` reads the sidecar back into them, :func:`merge_tables`
+joins files or DataFrames.
 """
 
 from __future__ import annotations

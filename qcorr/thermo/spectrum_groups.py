@@ -48,6 +48,7 @@ class ZeroFrequencyCheck:
     threshold: float
 
     def describe(self) -> str:
+        """One phrase for messages: S(0) (cm), its standard error and the ratio to the threshold."""
         se = "n/a" if math.isnan(self.zero_frequency_se) else f"{self.zero_frequency_se:.3g}"
         return (
             f"S(0) = {self.zero_frequency_density:.4g} cm (standard error {se}) is "
