@@ -34,7 +34,7 @@ from scipy import constants as sc
 from scipy.integrate import quad
 
 from qcorr.errors import ConfigError, SpectrumFileError
-from qcorr.thermo import harmonic
+from qcorr.thermo import harmonic, segment_statistics, spectrum_groups, spectrum_integrals
 from qcorr.thermo.weights import PROPERTIES
 
 R = sc.R  # CODATA via scipy, J/(mol K)
@@ -59,9 +59,9 @@ def test_einstein_solid_exact(ratio: float) -> None:
     theta = 240.0
     temperature = ratio * theta
     ds = spectra.einstein_solid_dataset(einstein_temperature_K=theta, temperature_K=temperature)
-    result = harmonic.harmonic_properties(ds, system="einstein")
+    result = harmonic.harmonic_property_rows(ds, system="einstein")
     # the grid point carrying the modes is theta/c2 up to one rounding: use its exact x
-    g = harmonic.spectrum_groups(ds)[0]
+    g = spectrum_groups.spectrum_groups(ds)[0]
     nu_e = g.wavenumber_cm[int(np.argmax(g.vdos))]
     x = sc.h * sc.c * 100 * nu_e / (sc.k * temperature)
     expected = {  # per mole of atoms, Einstein's closed forms (3 modes per atom)
@@ -106,7 +106,7 @@ def test_debye_solid_against_quadrature(ratio: float) -> None:
     theta = 343.0
     temperature = ratio * theta
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=temperature)
-    result = harmonic.harmonic_properties(ds, system="debye", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="debye", include_msd=False)
     ref = _debye_reference(ratio)
     for name in PROPERTIES:
         row = _one(result, property=name, basis="per_mole_atoms", method="harmonic")
@@ -127,7 +127,7 @@ def test_debye_zero_point_energy_nine_eighths() -> None:
     """Debye ZPE = (9/8) N k theta_D (Debye 1912), per system in kJ, for 4 atoms."""
     theta = 428.0
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=300.0, atoms=4)
-    result = harmonic.harmonic_properties(ds, system="al", properties=["zero_point_energy"],
+    result = harmonic.harmonic_property_rows(ds, system="al", properties=["zero_point_energy"],
                                           include_msd=False)
     row = _one(result, property="zero_point_energy", basis="per_system")
     assert row.quantum == pytest.approx(9 / 8 * 4 * sc.k * theta / 1000, rel=1e-6)
@@ -136,7 +136,7 @@ def test_debye_zero_point_energy_nine_eighths() -> None:
 def test_debye_table_value_at_theta() -> None:
     """Cv/3Nk = 0.9517 at T = theta_D: Debye-function table, 4 digits (from memory; also by quad)."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0)
-    result = harmonic.harmonic_properties(ds, system="d", properties=["heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="d", properties=["heat_capacity"],
                                           include_msd=False)
     value = _one(result, property="heat_capacity", basis="per_mole_atoms").quantum / (3 * R)
     assert value == pytest.approx(0.9517, abs=5e-5)
@@ -161,7 +161,7 @@ def test_aluminium_handbook_heat_capacity() -> None:
     electronic = 1.35e-3 * 298.15
     ds = spectra.debye_solid_dataset(debye_temperature_K=428.0, temperature_K=298.15,
                                      mass_g_mol=26.9815)
-    result = harmonic.harmonic_properties(ds, system="al", properties=["heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="al", properties=["heat_capacity"],
                                           include_msd=False)
     cv = _one(result, property="heat_capacity", basis="per_mole_atoms").quantum
     assert cv < cp_crc  # the lattice alone must fall short of the handbook Cp
@@ -177,7 +177,7 @@ def test_debye_mean_square_displacement(ratio: float) -> None:
     temperature = ratio * theta
     ds = spectra.debye_solid_dataset(debye_temperature_K=theta, temperature_K=temperature,
                                      mass_g_mol=mass)
-    result = harmonic.harmonic_properties(ds, system="cu", properties=["energy"])
+    result = harmonic.harmonic_property_rows(ds, system="cu", properties=["energy"])
     row = _one(result, property="mean_square_displacement")
     m = mass * sc.atomic_mass
     integral = quad(lambda x: x / math.expm1(x), 0, 1 / ratio, epsabs=0, epsrel=1e-13)[0]
@@ -196,7 +196,7 @@ def test_heat_capacity_is_dE_dT_on_a_spectrum() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=150.0,
                                      points_below_debye=4000)
     temps = [149.99, 150.0, 150.01]
-    result = harmonic.harmonic_properties(ds, system="d", temperatures_K=temps, include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="d", temperatures_K=temps, include_msd=False)
 
     def q(name, t):
         return _one(result, property=name, basis="per_system", temperature_K=t).quantum
@@ -214,7 +214,7 @@ def test_first_bin_log_integral_exact() -> None:
     s0, s1 = 2.0, 5.0
     expected = quad(lambda v: (s0 + (s1 - s0) * v / h) * math.log(c * v), 0, h,
                     epsabs=0, epsrel=1e-13)[0]
-    got = harmonic.log_moment(np.array([0.0, h]), np.array([s0, s1]), temperature)
+    got = spectrum_integrals.log_moment(np.array([0.0, h]), np.array([s0, s1]), temperature)
     assert float(got) == pytest.approx(expected, rel=1e-13)
 
 
@@ -224,7 +224,7 @@ def test_log_singular_weights_never_evaluated_at_zero() -> None:
     s = spectra.lorentzian_vdos(x, friction_per_ps=5.0, dof=3.0)
     with np.errstate(all="raise"):
         for name in ("entropy", "helmholtz_free_energy"):
-            cl, qu, co = harmonic.mode_integrals(x, s, 300.0, PROPERTIES[name])
+            cl, qu, co = spectrum_integrals.mode_integrals(x, s, 300.0, PROPERTIES[name])
             assert np.isfinite(cl) and np.isfinite(qu) and np.isfinite(co)
 
 
@@ -247,7 +247,7 @@ def test_any_positive_spectrum_signs_and_monotonicity(values, t1, factor) -> Non
     out = {}
     for t in (t1, t2):
         for name in ("energy", "heat_capacity", "entropy", "helmholtz_free_energy"):
-            _, _, corr = harmonic.mode_integrals(x, s, t, PROPERTIES[name])
+            _, _, corr = spectrum_integrals.mode_integrals(x, s, t, PROPERTIES[name])
             out[name, t] = float(corr) * (t if PROPERTIES[name].times_kT else 1.0)
     for t in (t1, t2):
         assert out["energy", t] > 0
@@ -276,7 +276,7 @@ def test_bases_are_consistent() -> None:
         x, {"total": spectra.GroupSpec(s, 9.0, atom_count=3, molecule_count=1, group_mass_g_mol=18.0)},
         temperature_K=300.0,
     )
-    result = harmonic.harmonic_properties(ds, system="w", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="w", include_msd=False)
     for name in PROPERTIES:
         mol = _one(result, property=name, basis="per_mole_molecules")
         atoms = _one(result, property=name, basis="per_mole_atoms")
@@ -289,7 +289,7 @@ def test_bases_are_consistent() -> None:
 def test_md_value_plus_correction() -> None:
     """X_q = X_MD + dX, with X_MD per mole of molecules converted to every basis."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0, atoms=4)
-    result = harmonic.harmonic_properties(
+    result = harmonic.harmonic_property_rows(
         ds, system="m", md_values={("total", "heat_capacity"): 24.0}, include_msd=False,
         temperatures_K=[300.0, 200.0],
     )
@@ -307,10 +307,10 @@ def test_temperature_scan_equals_evaluation_at_that_temperature() -> None:
     """A scan row at T equals the same spectrum evaluated with temperature_K = T; noted."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300.0, temperature_K=300.0,
                                      points_below_debye=2000)
-    scan = harmonic.harmonic_properties(ds, system="s", temperatures_K=[150.0], include_msd=False)
+    scan = harmonic.harmonic_property_rows(ds, system="s", temperatures_K=[150.0], include_msd=False)
     ds2 = ds.copy()
     ds2.attrs = dict(ds.attrs, temperature_K=150.0)
-    direct = harmonic.harmonic_properties(ds2, system="s", include_msd=False)
+    direct = harmonic.harmonic_property_rows(ds2, system="s", include_msd=False)
     for name in PROPERTIES:
         a = _one(scan, property=name, basis="per_system")
         b = _one(direct, property=name, basis="per_system")
@@ -327,8 +327,8 @@ def test_frozen_bond_addon() -> None:
         x, {"total": spectra.GroupSpec(s, 6.0, atom_count=30, molecule_count=10, group_mass_g_mol=180.0)},
         temperature_K=298.15,
     )
-    result = harmonic.harmonic_properties(
-        ds, system="w", frozen_bond_wavenumbers={"total": [3657.0, 3756.0]}, include_msd=False
+    result = harmonic.harmonic_property_rows(
+        ds, system="w", frozen_bond_wavenumbers_cm={"total": [3657.0, 3756.0]}, include_msd=False
     )
     zpe = _one(result, method="frozen_bond_addon", property="zero_point_energy",
                basis="per_mole_molecules")
@@ -362,7 +362,7 @@ def test_zero_frequency_criterion() -> None:
     """Diffusing iff S(0) > threshold x dof/<nu~> and > 3 standard errors (qcorr's definition)."""
     x = np.linspace(0, 800, 801)
     solid = spectra.debye_vdos(x, 300.0, 30.0)
-    check = harmonic.zero_frequency_check(x, solid, float("nan"))
+    check = spectrum_groups.zero_frequency_check(x, solid, float("nan"))
     assert not check.diffusing and check.ratio == 0.0
     # a pedestal: S(0) set so that the ratio is just below / above the threshold
     mean_wn = np.trapezoid(x * solid, x) / np.trapezoid(solid, x)
@@ -370,20 +370,20 @@ def test_zero_frequency_criterion() -> None:
     for ratio, expect in [(0.04, False), (0.06, True)]:
         s = solid.copy()
         s[0] = ratio * scale
-        check = harmonic.zero_frequency_check(x, s, float("nan"), threshold=0.05)
+        check = spectrum_groups.zero_frequency_check(x, s, float("nan"), threshold=0.05)
         assert check.diffusing is expect
         assert check.ratio == pytest.approx(ratio * scale / (np.trapezoid(s, x) / (np.trapezoid(x * s, x) / np.trapezoid(s, x))), rel=1e-12)
     # above the threshold but within 3 standard errors of zero: not clearly diffusing
     s = solid.copy()
     s[0] = 0.5 * scale
-    assert not harmonic.zero_frequency_check(x, s, zero_frequency_se=0.2 * scale).diffusing
-    assert harmonic.zero_frequency_check(x, s, zero_frequency_se=0.1 * scale).diffusing
+    assert not spectrum_groups.zero_frequency_check(x, s, zero_frequency_se=0.2 * scale).diffusing
+    assert spectrum_groups.zero_frequency_check(x, s, zero_frequency_se=0.1 * scale).diffusing
 
 
 def test_diffusing_group_refuses_absolute_entropy_keeps_corrections() -> None:
     """Liquid-like group: absolute S, A and MSD refused with a pointer to 'qcorr liquid'."""
     ds = _liquid_like_dataset()
-    result = harmonic.harmonic_properties(ds, system="mix")
+    result = harmonic.harmonic_property_rows(ds, system="mix")
     assert result.groups["liquid"]["diffusing"] and not result.groups["solid"]["diffusing"]
     for name in ("entropy", "helmholtz_free_energy"):
         row = _one(result, group="liquid", property=name, basis="per_mole_molecules")
@@ -405,13 +405,13 @@ def test_effective_segment_count_welch() -> None:
     rho_1 = sum_{n<L/2} sin^2 cos^2 / sum_n sin^4 = (L/16)/(3L/8) = 1/6
     (Welch's value 0.167 for the Hann window).
     """
-    assert harmonic.effective_segment_count(10, 64, 0.0, "hann") == pytest.approx(10.0)
-    assert harmonic.effective_segment_count(10, 64, 0.0, "none") == pytest.approx(10.0)
+    assert segment_statistics.effective_segment_count(10, 64, 0.0, "hann") == pytest.approx(10.0)
+    assert segment_statistics.effective_segment_count(10, 64, 0.0, "none") == pytest.approx(10.0)
     k = 10
     expected = k / (1 + 2 * (1 - 1 / k) * (1 / 6) ** 2)
-    assert harmonic.effective_segment_count(k, 64, 0.5, "hann") == pytest.approx(expected, rel=1e-12)
+    assert segment_statistics.effective_segment_count(k, 64, 0.5, "hann") == pytest.approx(expected, rel=1e-12)
     # rectangular taper at 50 %: rho_1 = 1/2
-    assert harmonic.effective_segment_count(k, 64, 0.5, "none") == pytest.approx(
+    assert segment_statistics.effective_segment_count(k, 64, 0.5, "none") == pytest.approx(
         k / (1 + 2 * (1 - 1 / k) * 0.25), rel=1e-12
     )
 
@@ -428,13 +428,13 @@ def test_standard_error_is_calibrated() -> None:
     x = np.linspace(0, 600, 301)
     truth = spectra.debye_vdos(x, 400.0, 12.0)
     prop = PROPERTIES["heat_capacity"]
-    true_value = float(harmonic.mode_integrals(x, truth, 150.0, prop)[1])
+    true_value = float(spectrum_integrals.mode_integrals(x, truth, 150.0, prop)[1])
     z = []
     for _ in range(400):
         segs = truth[None, :] * rng.gamma(4.0, 0.25, size=(16, x.size))
-        estimate = float(harmonic.mode_integrals(x, segs.mean(axis=0), 150.0, prop)[1])
-        per_segment = harmonic.mode_integrals(x, segs, 150.0, prop)[1]
-        se = float(harmonic.segment_standard_error(per_segment, 16.0))
+        estimate = float(spectrum_integrals.mode_integrals(x, segs.mean(axis=0), 150.0, prop)[1])
+        per_segment = spectrum_integrals.mode_integrals(x, segs, 150.0, prop)[1]
+        se = float(segment_statistics.segment_standard_error(per_segment, 16.0))
         z.append((estimate - true_value) / se)
     spread = float(np.std(z))
     assert 1.0 - 4 * 0.035 < spread < math.sqrt(15 / 13) + 4 * 0.035
@@ -462,18 +462,18 @@ def test_standard_error_calibrated_for_overlapping_normalised_segments() -> None
     index = (np.arange(count) * hop)[:, None] + np.arange(length)[None, :]
     x = np.arange(length // 2 + 1) * 10.0  # cm-1
     prop = PROPERTIES["heat_capacity"]
-    k_eff = harmonic.effective_segment_count(count, length, overlap, "hann")
+    k_eff = segment_statistics.effective_segment_count(count, length, overlap, "hann")
     estimates, errors, naive = [], [], []
     for _ in range(300):
         v = lfilter([1.0], [1.0, -a], rng.standard_normal((channels, n)), axis=1)
         power = (np.abs(np.fft.rfft(v[:, index] * window, axis=-1)) ** 2).mean(axis=0)
         common = power * (3.0 / np.trapezoid(power.mean(axis=0), x))  # file normalisation
-        estimates.append(float(harmonic.mode_integrals(x, common.mean(axis=0), 300.0, prop)[2]))
-        per_segment = harmonic.mode_integrals(
-            x, harmonic.normalised_segments(x, common, 3.0), 300.0, prop)[2]
-        errors.append(float(harmonic.segment_standard_error(per_segment, k_eff)))
-        naive.append(float(harmonic.segment_standard_error(
-            harmonic.mode_integrals(x, common, 300.0, prop)[2], count)))
+        estimates.append(float(spectrum_integrals.mode_integrals(x, common.mean(axis=0), 300.0, prop)[2]))
+        per_segment = spectrum_integrals.mode_integrals(
+            x, segment_statistics.normalised_segments(x, common, 3.0), 300.0, prop)[2]
+        errors.append(float(segment_statistics.segment_standard_error(per_segment, k_eff)))
+        naive.append(float(segment_statistics.segment_standard_error(
+            spectrum_integrals.mode_integrals(x, common, 300.0, prop)[2], count)))
     spread = float(np.std(estimates))
     assert 0.85 < spread / np.mean(errors) < 1.15
     assert spread / np.mean(naive) > 1.5
@@ -484,8 +484,8 @@ def test_standard_errors_reported_and_scale_with_scatter() -> None:
                                            points_below_debye=1000, segment_scatter=0.01, seed=3)
     ds_noisy = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                            points_below_debye=1000, segment_scatter=0.04, seed=3)
-    r1 = harmonic.harmonic_properties(ds_quiet, system="q", properties=["entropy"], include_msd=False)
-    r2 = harmonic.harmonic_properties(ds_noisy, system="n", properties=["entropy"], include_msd=False)
+    r1 = harmonic.harmonic_property_rows(ds_quiet, system="q", properties=["entropy"], include_msd=False)
+    r2 = harmonic.harmonic_property_rows(ds_noisy, system="n", properties=["entropy"], include_msd=False)
     a = _one(r1, property="entropy", basis="per_mole_atoms")
     b = _one(r2, property="entropy", basis="per_mole_atoms")
     assert a.quantum_se > 0 and b.quantum_se > 0
@@ -505,7 +505,7 @@ def test_negative_density_beyond_noise_refused() -> None:
         temperature_K=300.0,
     )
     with pytest.raises(SpectrumFileError) as info:
-        harmonic.harmonic_properties(ds, system="x", path="neg.nc")
+        harmonic.harmonic_property_rows(ds, system="x", source="neg.nc")
     msg = str(info.value)
     assert "neg.nc" in msg and "'total'" in msg and "100 cm-1" in msg and "negative beyond noise" in msg
 
@@ -523,24 +523,24 @@ def test_negative_density_within_noise_accepted() -> None:
         x, {"total": spectra.GroupSpec(segs.mean(axis=0), 12.0, 4, 4, 254.0, segment_spectra=segs)},
         temperature_K=300.0, segment_overlap=0.0,
     )
-    harmonic.harmonic_properties(ds, system="x", include_msd=False)
+    harmonic.harmonic_property_rows(ds, system="x", include_msd=False)
 
 
 @pytest.mark.parametrize("temps", [[0.0], [-10.0], [300.0, float("nan")]])
 def test_nonpositive_temperature_refused(temps) -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300, points_below_debye=500)
     with pytest.raises(ConfigError, match="--temperatures"):
-        harmonic.harmonic_properties(ds, system="x", temperatures_K=temps)
+        harmonic.harmonic_property_rows(ds, system="x", temperatures_K=temps)
 
 
 def test_unknown_property_and_group_refused() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300, points_below_debye=500)
     with pytest.raises(ConfigError, match="unknown property 'enthalpy'.*heat_capacity"):
-        harmonic.harmonic_properties(ds, system="x", properties=["enthalpy"])
+        harmonic.harmonic_property_rows(ds, system="x", properties=["enthalpy"])
     with pytest.raises(ConfigError, match="no group 'water'"):
-        harmonic.harmonic_properties(ds, system="x", md_values={("water", "energy"): 1.0})
+        harmonic.harmonic_property_rows(ds, system="x", md_values={("water", "energy"): 1.0})
     with pytest.raises(ConfigError, match="--frozen-bond-wavenumbers"):
-        harmonic.harmonic_properties(ds, system="x", frozen_bond_wavenumbers={"total": [-5.0]})
+        harmonic.harmonic_property_rows(ds, system="x", frozen_bond_wavenumbers_cm={"total": [-5.0]})
 
 
 def test_caution_when_integral_differs_from_dof() -> None:
@@ -551,9 +551,9 @@ def test_caution_when_integral_differs_from_dof() -> None:
         x, {"total": spectra.GroupSpec(s, 12.0, atom_count=4, molecule_count=4, group_mass_g_mol=100.0)},
         temperature_K=300.0,
     )
-    result = harmonic.harmonic_properties(ds, system="x", include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="x", include_msd=False)
     assert any("integrates to 9, not to its 12 degrees of freedom" in c for c in result.cautions)
-    ok = harmonic.harmonic_properties(spectra.debye_solid_dataset(debye_temperature_K=300,
+    ok = harmonic.harmonic_property_rows(spectra.debye_solid_dataset(debye_temperature_K=300,
                                       temperature_K=300, points_below_debye=500), system="y")
     assert not any("integrates to" in c for c in ok.cautions)
 
@@ -562,7 +562,7 @@ def test_equipartition_values_have_no_segment_error() -> None:
     """Classical harmonic E = dof kT and Cv = dof k are exact once each segment is normalised to the dof."""
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                      points_below_debye=1000, segment_scatter=0.05, seed=11)
-    result = harmonic.harmonic_properties(ds, system="e", properties=["energy", "heat_capacity"],
+    result = harmonic.harmonic_property_rows(ds, system="e", properties=["energy", "heat_capacity"],
                                           include_msd=False)
     for name in ("energy", "heat_capacity"):
         row = _one(result, property=name, basis="per_mole_atoms")
@@ -579,7 +579,7 @@ def test_spectrum_diagnostics_become_cautions() -> None:
         {"check": "resolution", "status": "warning", "message": "resolution 83 cm-1 is coarse"},
         {"check": "aliasing", "status": "ok", "message": "fine"},
     ])
-    cautions = harmonic.harmonic_properties(ds, system="d", include_msd=False).cautions
+    cautions = harmonic.harmonic_property_rows(ds, system="d", include_msd=False).cautions
     assert "Spectrum diagnostic 'resolution': resolution 83 cm-1 is coarse" in cautions
     assert not any("aliasing" in c for c in cautions)
 
@@ -587,7 +587,7 @@ def test_spectrum_diagnostics_become_cautions() -> None:
 def test_single_segment_gives_no_standard_error() -> None:
     ds = spectra.debye_solid_dataset(debye_temperature_K=300, temperature_K=300,
                                      points_below_debye=500, n_segments=1)
-    result = harmonic.harmonic_properties(ds, system="one", properties=["entropy"], include_msd=False)
+    result = harmonic.harmonic_property_rows(ds, system="one", properties=["entropy"], include_msd=False)
     row = _one(result, property="entropy", basis="per_mole_atoms")
     assert math.isnan(row.quantum_se) and math.isnan(row.correction_se)
     assert "one segment: no standard error" in row.note

@@ -179,12 +179,12 @@ def test_other_temperature_uses_it():
 
 def test_figures_are_written_and_reproducible(tmp_path):
     ds = debye_dataset(300.0, step=1.0)
-    first = plotting.plot_spectrum(ds, tmp_path / "a.svg")
-    plotting.plot_spectrum(ds, tmp_path / "b.svg")
+    first = plotting.save_figure(plotting.spectrum_figure(ds), tmp_path / "a.svg")
+    plotting.save_figure(plotting.spectrum_figure(ds), tmp_path / "b.svg")
     root = ElementTree.parse(first).getroot()
     assert root.tag.endswith("svg")
     assert (tmp_path / "a.svg").read_bytes() == (tmp_path / "b.svg").read_bytes()
-    png = plotting.plot_cumulative(ds, tmp_path / "c.png")
+    png = plotting.save_figure(plotting.cumulative_figure(ds), tmp_path / "c.png")
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert not list(tmp_path.glob("*.part"))
 
@@ -198,7 +198,7 @@ def test_default_axis_end_covers_the_band():
 def test_bad_extension_group_temperature(tmp_path):
     ds = debye_dataset(300.0)
     with pytest.raises(ConfigError, match=r"--spectrum-figure .*\.svg"):
-        plotting.plot_spectrum(ds, tmp_path / "a.txt")
+        plotting.save_figure(plotting.spectrum_figure(ds), tmp_path / "a.txt", option="--spectrum-figure")
     with pytest.raises(ConfigError, match="--group 'water'.*groups are: total"):
         plotting.cumulative_corrections(ds, group="water")
     with pytest.raises(ConfigError, match="--temperature"):
@@ -281,7 +281,8 @@ def test_figures_get_ordinary_file_permissions(tmp_path):
     the umask), not owner-only as the temporary file of the atomic write starts out."""
     umask = os.umask(0o022)
     try:
-        path = plotting.plot_spectrum(debye_dataset(300.0, step=1.0), tmp_path / "s.svg")
+        path = plotting.save_figure(plotting.spectrum_figure(debye_dataset(300.0, step=1.0)),
+                                    tmp_path / "s.svg")
     finally:
         os.umask(umask)
     assert stat.S_IMODE(path.stat().st_mode) == 0o644

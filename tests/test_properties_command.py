@@ -115,6 +115,24 @@ def test_diffusing_group_via_cli(liquid_file, tmp_path, capsys) -> None:
     assert "qcorr: warning: Group 'total' diffuses" in err
 
 
+def test_single_segment_spectrum(tmp_path) -> None:
+    """A spectrum of one segment has no standard errors: the table says so (empty cells, a
+    caution, null in the sidecar, which JSON requires instead of NaN) and the values stay
+    right: Debye (1912) Cv by scipy quadrature."""
+    ds = spectra.debye_solid_dataset(debye_temperature_K=343.0, temperature_K=298.15,
+                                     points_below_debye=4000, n_segments=1)
+    path = spectra.write_spectrum_file(ds, tmp_path / "one.nc")
+    out = tmp_path / "one.csv"
+    assert main(["properties", str(path), "--output", str(out), "--quiet"]) == 0
+    frame = pd.read_csv(out, keep_default_na=False, na_values=[""])
+    cv = frame[(frame.property == "heat_capacity") & (frame.basis == "per_mole_atoms")]
+    assert cv.quantum.iloc[0] == pytest.approx(_debye_cv_per_mole_atoms(343.0, 298.15), rel=1e-6)
+    assert frame.quantum_se.isna().all() and "one segment" in cv.note.iloc[0]
+    sidecar = json.loads(out.with_suffix(".json").read_text())
+    assert sidecar["groups"]["total"]["zero_frequency_se_cm"] is None
+    assert any("fewer than two segments" in c for c in sidecar["cautions"])
+
+
 def test_merge_command(debye_file, tmp_path) -> None:
     a, b, merged = tmp_path / "a.csv", tmp_path / "b.csv", tmp_path / "all.csv"
     assert main(["properties", str(debye_file), "--output", str(a), "--system", "a", "--quiet"]) == 0

@@ -52,7 +52,8 @@ def test_columns_follow_the_contract() -> None:
 def test_write_read_round_trip_exact(tmp_path) -> None:
     """Floats survive the CSV exactly (shortest repr); empty cells come back as NaN."""
     path, frame = _write(tmp_path)
-    back, provenance = table.read_table(path)
+    back = table.read_table(path)
+    provenance = back.attrs
     pd.testing.assert_frame_equal(back, frame, check_exact=True)
     assert back.loc[0, "quantum"] == 23.368123456789012
     assert provenance["qcorr_file_kind"] == "property_table"
@@ -103,7 +104,8 @@ def test_output_must_not_overwrite_input(tmp_path) -> None:
 def test_merge_concatenates_and_keeps_provenance(tmp_path) -> None:
     a, fa = _write(tmp_path, "a", "sys_a")
     b, fb = _write(tmp_path, "b", "sys_b")
-    merged, prov = table.merge_tables([a, b])
+    merged = table.merge_tables([a, b])
+    prov = merged.attrs
     assert len(merged) == len(fa) + len(fb)
     assert list(merged["system"].unique()) == ["sys_a", "sys_b"]
     assert [s["table"]["sha256"] for s in prov["merged_from"]] == [
@@ -162,3 +164,35 @@ def test_format_table_marks_refused_cells() -> None:
     text = table.format_table(frame)
     entropy_line = next(line for line in text.splitlines() if "entropy" in line)
     assert "refused (see CSV note)" in entropy_line and "0.8 ± 0.01" in entropy_line
+
+
+def test_attrs_are_the_sidecar_both_ways(tmp_path) -> None:
+    """A table in memory carries its provenance in attrs: write_table writes them to the
+    sidecar (after the header it sets itself), read_table gives them back."""
+    frame = table.rows_to_frame(_rows())
+    frame.attrs = {"options": {"system": "a"}, "cautions": ["harmonic approximation"],
+                   "table": "stale.csv"}
+    path = table.write_table(frame, tmp_path / "t.csv")
+    side = json.loads(table.sidecar_path(path).read_text())
+    assert list(side)[:4] == ["qcorr_file_kind", "table", "columns", "versions"]
+    assert side["table"] == "t.csv"  # this write's name, not the one in attrs
+    assert side["options"] == {"system": "a"} and side["cautions"] == ["harmonic approximation"]
+    back = table.read_table(path)
+    assert back.attrs == side
+    pd.testing.assert_frame_equal(back, frame, check_exact=True)
+
+
+def test_merge_accepts_tables_in_memory(tmp_path) -> None:
+    """Files and DataFrames merge alike; an in-memory table is named by its position."""
+    a, fa = _write(tmp_path, "a", "sys_a")
+    fb = table.rows_to_frame(_rows("sys_b"))
+    fb.attrs = {"cautions": ["harmonic approximation", "two-phase model"]}
+    merged = table.merge_tables([a, fb])
+    assert list(merged["system"]) == ["sys_a", "sys_a", "sys_b", "sys_b"]
+    assert merged.attrs["merged_from"][1]["table"] == {"name": "table 2 (in memory)"}
+    assert merged.attrs["merged_from"][0]["table"]["sha256"] == hashlib.sha256(a.read_bytes()).hexdigest()
+    assert merged.attrs["cautions"] == ["harmonic approximation", "two-phase model"]
+    with pytest.raises(ConfigError, match=r"table 2 \(in memory\) repeats the row"):
+        table.merge_tables([fa, fa])
+    with pytest.raises(ConfigError, match=r"table 1 \(in memory\) has columns"):
+        table.merge_tables([fa.drop(columns=["note"])])

@@ -1,4 +1,4 @@
-"""Tests of qcorr.thermo.twophase against outside sources (named beside each check)."""
+"""Tests of qcorr.thermo.twophase, hard_sphere_gas and rigid_rotor against outside sources (named beside each check)."""
 
 from __future__ import annotations
 
@@ -13,6 +13,8 @@ from scipy import constants as sc
 from scipy.integrate import quad
 
 from qcorr.errors import ConfigError, PhysicsError
+from qcorr.thermo import hard_sphere_gas as hs
+from qcorr.thermo import rigid_rotor as rr
 from qcorr.thermo import twophase as tp
 
 R = sc.R
@@ -29,7 +31,7 @@ def test_fluidicity_at_delta_one_matches_mpmath_root():
     eq = lambda f: (2 * d**-4.5 * f**7.5 - 6 * d**-3 * f**5 - d**-1.5 * f**3.5
                     + 6 * d**-1.5 * f**2.5 + 2 * f - 2)
     root = mpmath.findroot(eq, 0.5)
-    assert tp.fluidicity(1.0) == pytest.approx(float(root), abs=1e-12)
+    assert hs.fluidicity(1.0) == pytest.approx(float(root), abs=1e-12)
     assert round(float(root), 6) == 0.541187
 
 
@@ -38,22 +40,22 @@ def test_fluidicity_at_delta_one_matches_mpmath_root():
 def test_fluidicity_solves_equation_and_closed_form(delta):
     # Closed form f = (1 - y)^3 / (1 - y/2), y = f^{5/2}/delta^{3/2}: the
     # polynomial of Lin et al. (2003) rewritten in y (algebra, methods.md §3.1).
-    f = tp.fluidicity(delta)
+    f = hs.fluidicity(delta)
     assert 0.0 < f < 1.0
-    y = tp.gas_packing_fraction(f, delta)
+    y = hs.gas_packing_fraction(f, delta)
     assert f == pytest.approx((1 - y) ** 3 / (1 - y / 2), rel=1e-9, abs=1e-12)
-    assert abs(tp.fluidicity_equation(f, delta)) < 1e-8
+    assert abs(hs.fluidicity_equation(f, delta)) < 1e-8
 
 
 def test_fluidicity_limits():
     # Analytic limits of the universal equation: delta -> 0 gives f ~ delta^{3/5}
     # (y -> 1, f -> 2(1-y)^3 ... dominant balance), delta -> inf gives f -> 1.
     for d in (1e-8, 1e-10):
-        assert tp.fluidicity(d) / d**0.6 == pytest.approx(1.0, rel=1e-2)
-    assert tp.fluidicity(0.0) == 0.0
-    assert tp.fluidicity(1e8) == pytest.approx(1.0, abs=1e-8)
+        assert hs.fluidicity(d) / d**0.6 == pytest.approx(1.0, rel=1e-2)
+    assert hs.fluidicity(0.0) == 0.0
+    assert hs.fluidicity(1e8) == pytest.approx(1.0, abs=1e-8)
     with pytest.raises(PhysicsError, match="normalised diffusivity"):
-        tp.fluidicity(-1.0)
+        hs.fluidicity(-1.0)
 
 
 def test_normalized_diffusivity_from_D_and_S0_agree():
@@ -65,19 +67,19 @@ def test_normalized_diffusivity_from_D_and_S0_agree():
     vol_A3 = n / rho / 1e-30
     s0_s = 12 * m_u * sc.atomic_mass * n * D / (sc.k * T298)
     s0_cm = s0_s * sc.c * 100
-    delta = tp.normalized_diffusivity(s0_cm, n, T298, m_u, vol_A3)
-    assert tp.self_diffusion_from_zero_frequency(s0_cm, n, T298, m_u) == pytest.approx(D)
+    delta = hs.normalized_diffusivity(s0_cm, n, T298, m_u, vol_A3)
+    assert hs.self_diffusion_from_zero_frequency(s0_cm, n, T298, m_u) == pytest.approx(D)
     alt = (8 / 3) * D * math.sqrt(math.pi * m_u * sc.atomic_mass / (sc.k * T298)) * rho ** (
         1 / 3) * (6 / math.pi) ** (2 / 3)
     assert delta == pytest.approx(alt, rel=1e-12)
     assert delta == pytest.approx(0.1452, abs=5e-4)
-    assert tp.fluidicity(delta) == pytest.approx(0.2260, abs=5e-4)
+    assert hs.fluidicity(delta) == pytest.approx(0.2260, abs=5e-4)
 
 
 @pytest.mark.parametrize("bad", [0.0, -5.0, float("nan")])
 def test_normalized_diffusivity_rejects_bad_volume(bad):
     with pytest.raises(PhysicsError, match="volume"):
-        tp.normalized_diffusivity(1.0, 10, 300.0, 40.0, bad)
+        hs.normalized_diffusivity(1.0, 10, 300.0, 40.0, bad)
 
 
 # ---------------------------------------------------------------- gas DoS
@@ -85,9 +87,9 @@ def test_gas_dos_integral_and_zero_value():
     # Lorentzian S0/(1+(pi S0 x/(2G))^2) integrates to G over [0, inf) and
     # equals S0 at 0 (exact integral of a Lorentzian, Lin et al. 2003 Eq. for S_g).
     s0, g = 0.37, 123.0
-    val, _ = quad(lambda x: tp.gas_dos(np.array([x]), s0, g)[0], 0, np.inf)
+    val, _ = quad(lambda x: hs.gas_dos(np.array([x]), s0, g)[0], 0, np.inf)
     assert val == pytest.approx(g, rel=1e-9)
-    assert tp.gas_dos(np.array([0.0]), s0, g)[0] == s0
+    assert hs.gas_dos(np.array([0.0]), s0, g)[0] == s0
 
 
 # ---------------------------------------------------------------- gas entropies
@@ -96,8 +98,8 @@ def test_sackur_tetrode_argon_matches_codata():
     # (Cox, Wagman, Medvedev, CODATA Key Values for Thermodynamics, 1989;
     # NIST-JANAF). Ideal gas: y = 0, volume per particle kT/p. Within 0.1 %.
     v_A3 = sc.k * T298 / sc.bar / 1e-30
-    for form in tp.HARD_SPHERE_FORMS:
-        s = tp.hard_sphere_entropy(T298, 39.948, v_A3, 0.0, form) * R
+    for form in hs.HARD_SPHERE_FORMS:
+        s = hs.hard_sphere_entropy(T298, 39.948, v_A3, 0.0, form) * R
         assert s == pytest.approx(154.846, rel=1e-3)
         assert s == pytest.approx(154.846, abs=0.01)  # in fact to the stated digits
 
@@ -106,12 +108,12 @@ def test_hard_sphere_forms_differ_by_ln_z():
     # Carnahan & Starling, J. Chem. Phys. 51, 635 (1969): the two forms differ
     # by ln z(y) per particle (methods.md §3.2).
     y = 0.4392
-    a = tp.hard_sphere_entropy(300.0, 18.0, 30.0, y, "published")
-    b = tp.hard_sphere_entropy(300.0, 18.0, 30.0, y, "constant-volume")
+    a = hs.hard_sphere_entropy(300.0, 18.0, 30.0, y, "published")
+    b = hs.hard_sphere_entropy(300.0, 18.0, 30.0, y, "constant-volume")
     z = (1 + y + y * y - y**3) / (1 - y) ** 3
     assert a - b == pytest.approx(math.log(z), rel=1e-12)
     with pytest.raises(ConfigError, match="hard-sphere entropy form"):
-        tp.hard_sphere_entropy(300.0, 18.0, 30.0, y, "bogus")
+        hs.hard_sphere_entropy(300.0, 18.0, 30.0, y, "bogus")
 
 
 def test_cs_excess_entropy_matches_pressure_integral():
@@ -119,9 +121,9 @@ def test_cs_excess_entropy_matches_pressure_integral():
     # (thermodynamics of the Carnahan-Starling EOS); excess S/k = -A_ex/kT at
     # fixed N,V,T for hard spheres.  "constant-volume" minus the ideal part.
     y = 0.3
-    a_ex, _ = quad(lambda t: (tp.carnahan_starling_compressibility(t) - 1) / t, 0, y)
-    s_cv = tp.hard_sphere_entropy(300.0, 40.0, 50.0, y, "constant-volume")
-    s_id = tp.hard_sphere_entropy(300.0, 40.0, 50.0, 0.0, "constant-volume")
+    a_ex, _ = quad(lambda t: (hs.carnahan_starling_compressibility(t) - 1) / t, 0, y)
+    s_cv = hs.hard_sphere_entropy(300.0, 40.0, 50.0, y, "constant-volume")
+    s_id = hs.hard_sphere_entropy(300.0, 40.0, 50.0, 0.0, "constant-volume")
     assert s_cv - s_id == pytest.approx(-a_ex, rel=1e-10)
 
 
@@ -132,7 +134,7 @@ def test_rigid_rotor_entropy_water_cccbdb():
     # function q = (sqrt(pi)/sigma) prod (T/Theta)^{1/2}, differentiated by mpmath.
     c2 = sc.h * sc.c / sc.k * 100  # cm K
     theta = [c2 * b for b in (27.877, 14.512, 9.285)]
-    s = tp.rigid_rotor_entropy(T298, theta, 2) * R
+    s = rr.rigid_rotor_entropy(T298, theta, 2) * R
 
     def t_lnq(t):
         q = mpmath.sqrt(mpmath.pi) / 2 * mpmath.sqrt(t**3 / (theta[0] * theta[1] * theta[2]))
@@ -150,11 +152,11 @@ def test_rigid_rotor_linear_and_moments():
     # moment -> Theta conversion.
     b = 1.998  # cm^-1
     moment_u_A2 = sc.h / (8 * math.pi**2 * sc.c * 100 * b) / sc.atomic_mass / 1e-20
-    theta = tp.rotational_temperatures([moment_u_A2])
+    theta = rr.rotational_temperatures([moment_u_A2])
     assert theta[0] == pytest.approx(sc.h * sc.c * 100 * b / sc.k, rel=1e-12)
-    assert tp.rigid_rotor_entropy(T298, theta, 2) * R == pytest.approx(41.144, abs=0.002)
+    assert rr.rigid_rotor_entropy(T298, theta, 2) * R == pytest.approx(41.144, abs=0.002)
     with pytest.raises(ConfigError, match="symmetry number"):
-        tp.rigid_rotor_entropy(T298, theta, 0)
+        rr.rigid_rotor_entropy(T298, theta, 0)
 
 
 # ---------------------------------------------------------------- components
@@ -240,7 +242,7 @@ def test_gas_and_solid_split_conserves_dof_and_options():
     assert np.trapezoid(res.gas_dos + res.solid_dos, x) == pytest.approx(3 * n, rel=1e-9)
     alt = tp.two_phase_component("translation", x, s, molecule_count=n, temperature_K=t,
                                  mass_u=m, volume_A3=vol, hard_sphere_form="constant-volume")
-    z = tp.carnahan_starling_compressibility(res.packing_fraction)
+    z = hs.carnahan_starling_compressibility(res.packing_fraction)
     assert res.entropy - alt.entropy == pytest.approx(res.fluidicity * math.log(z), rel=1e-9)
     allp = tp.two_phase_component("translation", x, s, molecule_count=n, temperature_K=t,
                                   mass_u=m, volume_A3=vol, gas_volume="all-particles")
@@ -260,7 +262,7 @@ def test_rotation_needs_moments_and_uses_rigid_rotor():
                for b in (27.877, 14.512, 9.285)]
     vol = n * sc.k * t / sc.bar / 1e-30 * 1e3
     # S(0) chosen so that Delta = 1e4 (far into the gas-like limit)
-    s0 = 1e4 / tp.normalized_diffusivity(1.0, n, t, 18.015, vol)
+    s0 = 1e4 / hs.normalized_diffusivity(1.0, n, t, 18.015, vol)
     x = np.concatenate([[0.0], np.geomspace(1e-6, 1e6, 200001) * 6 * n / (math.pi * s0)])
     s = _ou_dos(x, s0, 3 * n)
     s *= 3 * n / np.trapezoid(s, x)
@@ -271,7 +273,7 @@ def test_rotation_needs_moments_and_uses_rigid_rotor():
                                  mass_u=18.015, volume_A3=vol, principal_moments_u_A2=moments,
                                  symmetry_number=2)
     theta = [c2 * b for b in (27.877, 14.512, 9.285)]
-    s_rr = tp.rigid_rotor_entropy(t, theta, 2)
+    s_rr = rr.rigid_rotor_entropy(t, theta, 2)
     assert res.fluidicity > 0.999
     assert res.entropy == pytest.approx(s_rr, abs=0.01)
 
@@ -284,7 +286,7 @@ def test_linear_rotor_rotation_component():
     n, t = 500, T298
     moment = sc.h / (8 * math.pi**2 * sc.c * 100 * 1.998) / sc.atomic_mass / 1e-20
     vol = n * sc.k * t / sc.bar / 1e-30
-    s0 = 1e4 / tp.normalized_diffusivity(1.0, n, t, 28.014, vol)
+    s0 = 1e4 / hs.normalized_diffusivity(1.0, n, t, 28.014, vol)
     x = np.concatenate([[0.0], np.geomspace(1e-6, 1e6, 200001) * 4 * n / (math.pi * s0)])
     s = _ou_dos(x, s0, 2 * n)
     res = tp.two_phase_component("rotation", x, s, molecule_count=n, temperature_K=t, mass_u=28.014,

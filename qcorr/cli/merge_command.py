@@ -29,9 +29,9 @@ def run(args: argparse.Namespace) -> int:
     output = table.check_output_path(args.output, args.tables)
     for path in args.tables:  # refuse merging a table's own sidecar, too
         table.check_output_path(args.output, [table.sidecar_path(path)])
-    frame, provenance = table.merge_tables(args.tables)
-    provenance = {"command_line": getattr(args, "command_line", ""), **provenance}
-    table.write_table(frame, output, provenance)
+    frame = table.merge_tables(args.tables)
+    frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs}
+    table.write_table(frame, output)
     print(f"merged {len(frame)} rows from {len(args.tables)} tables into {output} "
           f"and {table.sidecar_path(output)}")
     return 0

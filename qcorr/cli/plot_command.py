@@ -1,4 +1,4 @@
-"""``qcorr plot``: figures of a spectrum file (parsing only; drawing in :mod:`qcorr.outputs.figures`)."""
+"""``qcorr plot``: figures of a spectrum file (parsing only; drawing and saving in :mod:`qcorr.outputs.figures`)."""
 
 from __future__ import annotations
 
@@ -50,31 +50,29 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from qcorr.outputs import figures as plotting
+    from qcorr.outputs import figures
     from qcorr.spectra.spectrum_file import read_spectrum
 
-    if not args.spectrum_figure and not args.cumulative_figure:
+    wanted = [(option, path) for option, path in (("--spectrum-figure", args.spectrum_figure),
+                                                  ("--cumulative-figure", args.cumulative_figure))
+              if path]
+    if not wanted:
         raise ConfigError(
             "give --spectrum-figure FILE and/or --cumulative-figure FILE: nothing to draw"
         )
-    for option, path in (("--spectrum-figure", args.spectrum_figure),
-                         ("--cumulative-figure", args.cumulative_figure)):
-        if path:
-            plotting.figure_format(path, option)
-    if args.max_wavenumber is not None and not args.max_wavenumber > 0:
-        raise ConfigError(f"--max-wavenumber {args.max_wavenumber!r}: must be > 0 cm^-1")
+    for option, path in wanted:
+        figures.figure_format(path, option)
     ds = read_spectrum(args.spectrum)
-    if args.cumulative_figure:
-        # checks group, basis and temperature before anything is written
-        plotting.cumulative_corrections(ds, args.group, args.temperature, args.basis)
-    written = []
-    if args.spectrum_figure:
-        written.append(plotting.plot_spectrum(ds, args.spectrum_figure, args.temperature,
-                                              args.max_wavenumber))
-    if args.cumulative_figure:
-        written.append(plotting.plot_cumulative(ds, args.cumulative_figure, args.group,
-                                                args.temperature, args.basis,
-                                                args.max_wavenumber))
+    drawn = []  # every figure is drawn (and its options checked) before any is written
+    for option, path in wanted:
+        if option == "--spectrum-figure":
+            figure = figures.spectrum_figure(ds, temperature_K=args.temperature,
+                                             max_wavenumber_cm=args.max_wavenumber)
+        else:
+            figure = figures.cumulative_figure(ds, group=args.group, temperature_K=args.temperature,
+                                               basis=args.basis, max_wavenumber_cm=args.max_wavenumber)
+        drawn.append((figure, path, option))
+    written = [figures.save_figure(figure, path, option=option) for figure, path, option in drawn]
     for path in written:
         print(f"qcorr plot: wrote {path}")
     return 0

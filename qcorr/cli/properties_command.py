@@ -1,21 +1,20 @@
 """``qcorr properties``: harmonic quantum corrections and properties from a spectrum file.
 
-Parsing and dispatch only; the physics is in :mod:`qcorr.thermo.harmonic`, the table
-in :mod:`qcorr.outputs.table`.
+Parsing and dispatch only: :func:`qcorr.thermo.harmonic.harmonic_properties` makes the
+table, :mod:`qcorr.outputs.table` writes and prints it.
 """
 
 from __future__ import annotations
 
 import argparse
-import json
 import math
-import warnings
 from pathlib import Path
 
-from qcorr.errors import ConfigError, QcorrWarning
+from qcorr.errors import ConfigError
 from qcorr.outputs import table
 from qcorr.spectra.spectrum_file import read_spectrum
-from qcorr.thermo import harmonic
+from qcorr.thermo.harmonic import harmonic_properties
+from qcorr.thermo.spectrum_groups import DEFAULT_ZERO_FREQUENCY_THRESHOLD
 from qcorr.thermo.weights import PROPERTIES, get_property
 
 NAME = "properties"
@@ -56,7 +55,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="wavenumbers in cm-1 of the bonds constrained in the MD, per molecule "
                              "of GROUP; reported on separate rows (method frozen_bond_addon)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=float,
-                        default=harmonic.DEFAULT_ZERO_FREQUENCY_THRESHOLD,
+                        default=DEFAULT_ZERO_FREQUENCY_THRESHOLD,
                         help="a group diffuses when S(0) exceeds this fraction of dof/<wavenumber> "
                              "(and 3 standard errors); its absolute entropy and free energy are refused")
     parser.add_argument("--quiet", action="store_true", help="do not print the table" + _NO_AUTO_DEFAULT)
@@ -112,73 +111,23 @@ def parse_frozen_bonds(items: list[str]) -> dict[str, list[float]]:
 def run(args: argparse.Namespace) -> int:
     spectrum_path = Path(args.spectrum)
     output = table.check_output_path(args.output, [spectrum_path])
-    if args.temperatures is not None:
-        for t in args.temperatures:
-            if not (math.isfinite(t) and t > 0):
-                raise ConfigError(f"--temperatures: {t:g} K is not a positive temperature; give values > 0 K")
-    if args.properties is not None:
-        for name in args.properties:
-            get_property(name, "--properties")
     md_values = parse_md_values(args.md_value)
     frozen = parse_frozen_bonds(args.frozen_bond_wavenumbers)
-    system = args.system if args.system is not None else spectrum_path.stem
-    if not system.strip():
-        raise ConfigError("--system: give a non-empty identifier")
-
     ds = read_spectrum(spectrum_path)
-    result = harmonic.harmonic_properties(
+    frame = harmonic_properties(
         ds,
-        system=system,
-        path=spectrum_path,
+        system=args.system,
         temperatures_K=args.temperatures,
         properties=args.properties,
         md_values=md_values,
-        frozen_bond_wavenumbers=frozen,
+        frozen_bond_wavenumbers_cm=frozen,
         zero_frequency_threshold=args.zero_frequency_threshold,
+        source=spectrum_path,
     )
-    frame = table.rows_to_frame(result.rows)
-    cautions = list(table.HARMONIC_CAUTIONS) + result.cautions
-    spectrum_provenance = {
-        key: ds.attrs[key]
-        for key in ("temperature_K", "qcorr_version", "command_line", "segment_frames",
-                    "segment_length_ps", "segment_overlap", "taper", "resolution_wavenumber",
-                    "nyquist_wavenumber", "velocity_source", "frames_used")
-        if key in ds.attrs
-    }
-    for key in ("input_files", "diagnostics"):
-        try:
-            spectrum_provenance[key] = json.loads(ds.attrs[key])
-        except (KeyError, TypeError, ValueError):
-            spectrum_provenance[key] = ds.attrs.get(key)
-    provenance = {
-        "command_line": getattr(args, "command_line", ""),
-        "method": "harmonic weighting functions (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, "
-                  "2375 (1983))",
-        "input_spectrum": table.file_record(spectrum_path),
-        "spectrum_provenance": spectrum_provenance,
-        "options": {
-            "system": system,
-            "temperatures_K": args.temperatures or [float(ds.attrs["temperature_K"])],
-            "properties": args.properties or list(PROPERTIES),
-            "md_values": [{"group": g, "property": p, "value": v} for (g, p), v in md_values.items()],
-            "frozen_bond_wavenumbers_cm": frozen,
-            "zero_frequency_threshold": args.zero_frequency_threshold,
-        },
-        "md_value_basis": "per mole of molecules, J/(mol K) or kJ/mol, at the spectrum's temperature",
-        "standard_errors": "per-segment spectra (block averaging); s / sqrt(K_eff) with Welch's "
-                           "(IEEE Trans. Audio Electroacoust. 15, 70 (1967)) effective number of "
-                           "independent overlapping segments",
-        "groups": result.groups,
-        "cautions": cautions,
-    }
-    table.write_table(frame, output, provenance)
-    for caution in result.cautions:
-        warnings.warn(caution, QcorrWarning, stacklevel=1)
+    frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
+                   "input_spectrum": table.file_record(spectrum_path)}
+    table.write_table(frame, output)
     if not args.quiet:
-        print(table.format_table(frame, "per_mole_molecules"))
-        print()
-        print("Values per mole of molecules (all bases in the CSV). Cautions:")
-        for caution in cautions:
-            print(f"- {caution}")
+        print(table.summary_text(frame, "Values per mole of molecules (all bases in the CSV)."))
         print(f"wrote {output} and {table.sidecar_path(output)}")
     return 0

@@ -1,1 +1,2 @@
-"""Outputs: the property table (CSV + JSON sidecar) and figures."""
+"""Outputs: the property table (``table``: DataFrames, CSV + JSON sidecar, merging,
+printing) and the figures (``figures``: matplotlib Figures and saving them)."""

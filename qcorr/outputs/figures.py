@@ -18,8 +18,9 @@ file's wavenumber grid, the rule under which the spectrum is normalised to the
 degrees of freedom.  The corrections vanish like u² as ν → 0, so the first bin
 needs no special treatment (unlike absolute entropies).
 
-Figures are drawn with matplotlib's object interface and its Agg / SVG
-renderers (no display needed) and written atomically.  SVG output carries no
+Figures are drawn with matplotlib's object interface (no pyplot, no display
+needed) and returned as :class:`matplotlib.figure.Figure`; :func:`save_figure`
+writes one atomically with the Agg / SVG / PDF renderers.  SVG output carries no
 date and a fixed id salt, so the same input gives the same bytes.
 
 References
@@ -45,7 +46,7 @@ from qcorr.constants import reduced_frequency, wavenumber_per_THz
 from qcorr.errors import ConfigError, PhysicsError
 from qcorr.safe_write import atomic_path
 from qcorr.thermo import weights
-from qcorr.thermo.harmonic import to_physical, unit_of
+from qcorr.thermo.spectrum_integrals import to_physical, unit_of
 
 #: figure file formats qcorr writes, by file-name extension
 FIGURE_FORMATS: tuple[str, ...] = ("svg", "png", "pdf")
@@ -155,7 +156,7 @@ def cumulative_corrections(
         system), energies in kJ/mol (kJ per system).  Value at ν̃:
         ``c ∫_0^ν̃ S(ν̃') ΔW(u) dν̃'`` with ``c = k`` or ``k T`` times ``N_A/n`` for a
         molar basis (``n`` molecules or atoms of the group), by the trapezoid rule,
-        starting at 0; the conversion is :func:`qcorr.thermo.harmonic.to_physical`, the one
+        starting at 0; the conversion is :func:`qcorr.thermo.spectrum_integrals.to_physical`, the one
         the property table uses.  Attributes ``temperature_K``, ``group``, ``basis``.
 
     Notes
@@ -207,7 +208,31 @@ def default_upper_wavenumber(ds: xr.Dataset) -> float:
     return float(min(wavenumber[-1], 1.15 * wavenumber[min(index, wavenumber.size - 1)]))
 
 
-def _save(figure: Figure, path: str | os.PathLike[str], option: str) -> Path:
+def save_figure(figure: Figure, path: str | os.PathLike[str], *, option: str = "path") -> Path:
+    """Write a figure atomically; the extension of *path* (.svg, .png, .pdf) picks the format.
+
+    SVG and PDF carry no date and SVG a fixed id salt, so the same figure gives the same
+    bytes; PNG is written at 150 dpi.
+
+    Parameters
+    ----------
+    figure : matplotlib.figure.Figure
+        E.g. from :func:`spectrum_figure` or :func:`cumulative_figure`.
+    path : str or path-like
+        Output file (its directory is made if missing).
+    option : str
+        Name of the option or argument that gave *path*, for the error message.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+
+    Raises
+    ------
+    ConfigError
+        If the extension is not one of :data:`FIGURE_FORMATS` (nothing is written).
+    """
     fmt = figure_format(path, option)
     FigureCanvasAgg(figure)
     metadata = {"Date": None} if fmt in ("svg", "pdf") else {"Software": None}
@@ -222,6 +247,15 @@ def _save(figure: Figure, path: str | os.PathLike[str], option: str) -> Path:
     return Path(path)
 
 
+def _upper_wavenumber(ds: xr.Dataset, max_wavenumber_cm: float | None) -> float:
+    """The figures' upper wavenumber in cm^-1: the given one (> 0) or the default."""
+    if max_wavenumber_cm is None:
+        return default_upper_wavenumber(ds)
+    if not max_wavenumber_cm > 0:
+        raise ConfigError(f"--max-wavenumber {max_wavenumber_cm!r}: must be > 0 cm^-1")
+    return float(max_wavenumber_cm)
+
+
 def _add_frequency_axis(axes) -> None:
     top = axes.secondary_xaxis(
         "top",
@@ -230,33 +264,39 @@ def _add_frequency_axis(axes) -> None:
     top.set_xlabel("frequency (THz)")
 
 
-def plot_spectrum(
+def spectrum_figure(
     ds: xr.Dataset,
-    path: str | os.PathLike[str],
+    *,
     temperature_K: float | None = None,
-    max_wavenumber: float | None = None,
+    max_wavenumber_cm: float | None = None,
     title: str | None = None,
-) -> Path:
+) -> Figure:
     """Draw the VDOS of every group with the quantum weighting functions over it.
 
     Parameters
     ----------
     ds : xarray.Dataset
         Spectrum file contents.
-    path : str or path-like
-        Output file; the extension (.svg, .png, .pdf) picks the format.
     temperature_K : float, optional
         Temperature in K of the weighting functions (default: the file's).
-    max_wavenumber : float, optional
-        Upper end of the wavenumber axis in cm⁻¹ (default
+    max_wavenumber_cm : float, optional
+        Upper end of the wavenumber axis in cm⁻¹, > 0 (default
         :func:`default_upper_wavenumber`).
     title : str, optional
         Figure title (default: the file's temperature).
 
     Returns
     -------
-    pathlib.Path
-        The written file.
+    matplotlib.figure.Figure
+        One axes: a line per group, ``VDOS, group <name>`` (left axis, cm), and on a
+        twin right axis the two weighting functions; a frequency axis (THz) on top.
+        Write it with :func:`save_figure`.
+
+    Raises
+    ------
+    ConfigError
+        Temperature <= 0 or upper wavenumber <= 0 (names ``--temperature`` /
+        ``--max-wavenumber``).
 
     Notes
     -----
@@ -265,11 +305,10 @@ def plot_spectrum(
     ``u/(eᵘ−1)`` of :mod:`qcorr.thermo.weights` at ``u = h c ν̃/(k T)``; a classical
     oscillator has weight 1 in both.
     """
-    figure_format(path, "--spectrum-figure")
     temperature_K = _check_temperature(
         ds.attrs["temperature_K"] if temperature_K is None else temperature_K
     )
-    upper = default_upper_wavenumber(ds) if max_wavenumber is None else float(max_wavenumber)
+    upper = _upper_wavenumber(ds, max_wavenumber_cm)
     wavenumber = np.asarray(ds["wavenumber"].values, dtype=float)
     shown = wavenumber <= upper
     figure = Figure(figsize=(7.0, 4.2), layout="constrained")
@@ -306,50 +345,51 @@ def plot_spectrum(
             + ("" if temperature_K == measured else f"; weights at {temperature_K:g} K")
         )
     )
-    return _save(figure, path, "--spectrum-figure")
+    return figure
 
 
-def plot_cumulative(
+def cumulative_figure(
     ds: xr.Dataset,
-    path: str | os.PathLike[str],
+    *,
     group: str = "total",
     temperature_K: float | None = None,
     basis: str = "per_mole_molecules",
-    max_wavenumber: float | None = None,
+    max_wavenumber_cm: float | None = None,
     title: str | None = None,
-) -> Path:
+) -> Figure:
     """Draw the cumulative quantum corrections of one group against wavenumber.
 
     Parameters
     ----------
     ds : xarray.Dataset
         Spectrum file contents.
-    path : str or path-like
-        Output file; the extension (.svg, .png, .pdf) picks the format.
     group : str
         Atom group (default ``total``).
     temperature_K : float, optional
         Temperature in K (default: the file's).
     basis : {"per_mole_molecules", "per_mole_atoms", "per_system"}
         Per mole of molecules, per mole of atoms, or per simulated system.
-    max_wavenumber : float, optional
-        Upper end of the axis in cm⁻¹ (default :func:`default_upper_wavenumber`).
+    max_wavenumber_cm : float, optional
+        Upper end of the axis in cm⁻¹, > 0 (default :func:`default_upper_wavenumber`).
     title : str, optional
         Figure title.
 
     Returns
     -------
-    pathlib.Path
-        The written file.
+    matplotlib.figure.Figure
+        Two axes (and their frequency axes on top): left ΔCv and ΔS (J/(mol K) or J/K),
+        right ΔE, ΔA and the zero-point energy (kJ/mol or kJ), each a line from
+        :func:`cumulative_corrections`.  Write it with :func:`save_figure`.
 
-    Notes
-    -----
-    Left panel: ΔCv and ΔS (J/(mol K) or J/K); right panel: ΔE, ΔA and the
-    zero-point energy (kJ/mol or kJ), each from :func:`cumulative_corrections`.
+    Raises
+    ------
+    ConfigError
+        Unknown group or basis, temperature <= 0, upper wavenumber <= 0.
+    PhysicsError
+        A molar basis of a group whose molecule or atom count is not positive.
     """
-    figure_format(path, "--cumulative-figure")
     running = cumulative_corrections(ds, group, temperature_K, basis)
-    upper = default_upper_wavenumber(ds) if max_wavenumber is None else float(max_wavenumber)
+    upper = _upper_wavenumber(ds, max_wavenumber_cm)
     wavenumber = np.asarray(running["wavenumber"].values, dtype=float)
     shown = wavenumber <= upper
     figure = Figure(figsize=(9.0, 4.0), layout="constrained")
@@ -369,4 +409,4 @@ def plot_cumulative(
         title
         or f"quantum corrections of group {group}, {per}, at {running.attrs['temperature_K']:g} K"
     )
-    return _save(figure, path, "--cumulative-figure")
+    return figure

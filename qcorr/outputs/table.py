@@ -12,6 +12,11 @@ defined); floats are written with full double precision.  The JSON sidecar
 SHA-256), the qcorr and library versions, the options, and the cautions that
 apply to every number in the table.  Both files are written atomically: either
 both appear complete, or neither is touched.
+
+In memory a table is a :class:`pandas.DataFrame` with exactly :data:`TABLE_COLUMNS`
+and its provenance in ``DataFrame.attrs``: :func:`write_table` writes the attrs as the
+sidecar, :func:`read_table` reads the sidecar back into them, :func:`merge_tables`
+joins files or DataFrames.
 """
 
 from __future__ import annotations
@@ -59,27 +64,13 @@ COLUMNS: dict[str, str] = {
     "note": "why a cell is empty, or how to read the row",
 }
 TABLE_COLUMNS: tuple[str, ...] = tuple(COLUMNS)
+#: the columns holding text; the others hold numbers (NaN = empty cell)
+TEXT_COLUMNS: tuple[str, ...] = (
+    "system", "group", "method", "property", "basis", "unit", "classical_source", "note",
+)
 
 #: the value bases of a table
 BASES = ("per_mole_molecules", "per_mole_atoms", "per_system")
-
-#: cautions that hold for every harmonic number qcorr reports
-HARMONIC_CAUTIONS: tuple[str, ...] = (
-    ("Harmonic approximation: every spectral component is treated as an independent harmonic "
-     "mode (Berens, Mackay, White, Wilson, J. Chem. Phys. 79, 2375 (1983)); the corrections "
-     "are first-order fixes to classical MD values, not a quantum simulation."),
-    ("Anharmonic modes: classical MD frequencies are anharmonic and red-shifted; strongly "
-     "anharmonic, diffusive, hindered-rotor or tunnelling motion is not described correctly."),
-    ("Thermostat artefacts: local stochastic thermostats (Langevin, Andersen) broaden bands "
-     "and change the low-frequency spectrum; prefer NVE or weakly coupled global thermostats "
-     "for the production run that feeds the spectrum."),
-    ("Constrained bonds: modes removed by constraints are absent from the spectrum; their "
-     "zero-point energy and quantum contributions appear only through the frozen-bond add-on "
-     "rows, from user-given wavenumbers."),
-    ("These results support, not replace, validated practice: compare with experiment or "
-     "path-integral simulations where available."),
-)
-
 
 @dataclass
 class TableRow:
@@ -177,33 +168,50 @@ def _json_default(value: object) -> object:
     raise TypeError(f"not JSON serialisable: {type(value).__name__}")
 
 
-def write_table(frame: pd.DataFrame, path: str | os.PathLike[str], provenance: dict) -> Path:
+def write_table(
+    frame: pd.DataFrame, path: str | os.PathLike[str], provenance: dict | None = None
+) -> Path:
     """Write the table CSV and its JSON sidecar atomically (both or neither).
 
     Parameters
     ----------
     frame : pandas.DataFrame
-        Table with exactly :data:`TABLE_COLUMNS`.
+        Table with exactly :data:`TABLE_COLUMNS` (as made by
+        :func:`qcorr.thermo.harmonic.harmonic_properties`,
+        :func:`qcorr.thermo.twophase_table.two_phase_properties`, :func:`read_table` or
+        :func:`merge_tables`).
     path : str or path-like
         Target CSV; the sidecar goes to :func:`sidecar_path`.
-    provenance : dict
-        JSON-serialisable provenance; ``qcorr_file_kind``, ``columns`` and
-        ``versions`` are added.
+    provenance : dict, optional
+        JSON-serialisable provenance (options, cautions, per-group diagnostics, ...);
+        default ``frame.attrs``.  ``qcorr_file_kind``, ``table``, ``columns`` and
+        ``versions`` are set by this write and come first.
 
     Returns
     -------
     pathlib.Path
         The CSV path.
+
+    Raises
+    ------
+    QcorrError
+        If the columns are not :data:`TABLE_COLUMNS`.
+    TypeError, ValueError
+        If the provenance is not JSON-serialisable (NaN included); nothing is written.
     """
     if tuple(frame.columns) != TABLE_COLUMNS:
-        raise QcorrError(f"internal: table columns {tuple(frame.columns)} != {TABLE_COLUMNS}")
-    sidecar = {
+        raise QcorrError(
+            f"the table's columns {tuple(frame.columns)} are not the property-table columns "
+            f"{TABLE_COLUMNS}; build the table with qcorr's property functions"
+        )
+    provenance = dict(frame.attrs if provenance is None else provenance)
+    header = {
         "qcorr_file_kind": FILE_KIND,
         "table": Path(path).name,
         "columns": COLUMNS,
         "versions": library_versions(),
-        **provenance,
     }
+    sidecar = {**header, **{k: v for k, v in provenance.items() if k not in header}}
     text = json.dumps(sidecar, indent=2, sort_keys=False, default=_json_default, allow_nan=False)
     path = Path(path)
     with atomic_path(path) as tmp_csv, atomic_path(sidecar_path(path)) as tmp_json:
@@ -212,8 +220,20 @@ def write_table(frame: pd.DataFrame, path: str | os.PathLike[str], provenance: d
     return path
 
 
-def read_table(path: str | os.PathLike[str]) -> tuple[pd.DataFrame, dict]:
+def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
     """Read a table written by qcorr and its sidecar.
+
+    Parameters
+    ----------
+    path : str or path-like
+        Table CSV; its sidecar ``TABLE.json`` must sit beside it.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Exactly :data:`TABLE_COLUMNS` (empty cells as NaN in the number columns, empty
+        strings in the text columns; values in the units of the ``unit`` column); the
+        sidecar's contents in ``attrs``.
 
     Raises
     ------
@@ -254,17 +274,32 @@ def read_table(path: str | os.PathLike[str]) -> tuple[pd.DataFrame, dict]:
             f"sidecar '{side}' of table '{path}' was not written by qcorr "
             f"(qcorr_file_kind is not {FILE_KIND!r})"
         )
-    for col in ("system", "group", "method", "property", "basis", "unit", "classical_source", "note"):
+    for col in TEXT_COLUMNS:
         frame[col] = frame[col].fillna("").astype(str)
-    return frame, provenance
+    frame.attrs = provenance
+    return frame
 
 
 #: the columns that identify a row; no two rows of a merged table may share them
 KEY_COLUMNS = ("system", "group", "method", "property", "temperature_K", "basis")
 
 
-def merge_tables(paths: Sequence[str | os.PathLike[str]]) -> tuple[pd.DataFrame, dict]:
+def merge_tables(tables: Sequence[str | os.PathLike[str] | pd.DataFrame]) -> pd.DataFrame:
     """Concatenate several tables (e.g. one per system) into one.
+
+    Parameters
+    ----------
+    tables : sequence of path-like or pandas.DataFrame
+        Table files (CSV with the JSON sidecar beside it) or tables in memory (with
+        their provenance in ``attrs``), in the order their rows should appear.
+
+    Returns
+    -------
+    pandas.DataFrame
+        The rows of all tables, :data:`TABLE_COLUMNS`; ``attrs`` holds
+        ``merged_from`` (per input: ``table``, the file's name, size and SHA-256 or
+        ``{"name": "table N (in memory)"}``, and ``provenance``, its sidecar or attrs)
+        and ``cautions`` (every input's cautions, each once, in order).
 
     Raises
     ------
@@ -273,30 +308,44 @@ def merge_tables(paths: Sequence[str | os.PathLike[str]]) -> tuple[pd.DataFrame,
         tables hold the same row key (system, group, method, property, temperature,
         basis), e.g. because two runs were given the same ``--system``.
     """
-    if not paths:
+    if not tables:
         raise ConfigError("qcorr merge: give at least one table")
     frames = []
     sources = []
     seen: dict[tuple, str] = {}
-    for path in paths:
-        frame, provenance = read_table(path)
+    for number, item in enumerate(tables, start=1):
+        if isinstance(item, pd.DataFrame):
+            label = f"table {number} (in memory)"
+            where = label
+            if tuple(item.columns) != TABLE_COLUMNS:
+                raise ConfigError(
+                    f"{label} has columns that do not match a qcorr property table; give tables "
+                    "made by qcorr's property functions"
+                )
+            frame, record, provenance = item, {"name": label}, dict(item.attrs)
+        else:
+            label = f"'{os.fspath(item)}'"
+            where = f"table {label}"
+            frame = read_table(item)
+            record, provenance = file_record(item), frame.attrs
         for key in frame[list(KEY_COLUMNS)].itertuples(index=False, name=None):
             if key in seen:
                 raise ConfigError(
-                    f"table '{path}' repeats the row (system={key[0]!r}, group={key[1]!r}, "
+                    f"{where} repeats the row (system={key[0]!r}, group={key[1]!r}, "
                     f"method={key[2]!r}, property={key[3]!r}, temperature_K={key[4]}, "
-                    f"basis={key[5]!r}) already in '{seen[key]}'; give each run its own --system"
+                    f"basis={key[5]!r}) already in {seen[key]}; give each run its own --system"
                 )
-            seen[key] = os.fspath(path)
+            seen[key] = label
         frames.append(frame)
-        sources.append({"table": file_record(path), "provenance": provenance})
+        sources.append({"table": record, "provenance": provenance})
     merged = pd.concat(frames, ignore_index=True)[list(TABLE_COLUMNS)]
     cautions: list[str] = []
     for src in sources:
         for c in src["provenance"].get("cautions", []):
             if c not in cautions:
                 cautions.append(c)
-    return merged, {"merged_from": sources, "cautions": cautions}
+    merged.attrs = {"merged_from": sources, "cautions": cautions}
+    return merged
 
 
 def _value_with_error(value: float, error: float) -> str:
@@ -344,3 +393,11 @@ def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
     if shown.empty:
         return "(no rows)"
     return shown.to_string(index=False)
+
+
+def summary_text(frame: pd.DataFrame, heading: str, basis: str = "per_mole_molecules") -> str:
+    """What the property commands print: the table of one basis (:func:`format_table`),
+    then *heading* and the cautions of ``frame.attrs``, one per line."""
+    lines = [format_table(frame, basis), "", f"{heading} Cautions:"]
+    lines += [f"- {caution}" for caution in frame.attrs.get("cautions", [])]
+    return "\n".join(lines)

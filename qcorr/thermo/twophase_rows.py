@@ -1,0 +1,158 @@
+"""Rows of the two-phase (2PT) property table for one group, and the checks of its result.
+
+Values are per mole of molecules (``DEVELOPERS.md``, "The property table"); the 2PT
+results of :mod:`qcorr.thermo.twophase` are in units of k or kT per molecule.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from qcorr import constants as C
+from qcorr.outputs.table import TableRow
+from qcorr.thermo.segment_statistics import segment_standard_error
+from qcorr.thermo.twophase import GroupResult
+from qcorr.thermo.twophase_inputs import GroupInput
+
+
+def _kJ_per_mol(value_kT: float, temperature_K: float) -> float:
+    """A value in units of kT per molecule -> kJ/mol (R T / 1000)."""
+    return value_kT * C.gas_constant_J_per_mol_K * temperature_K * 1e-3
+
+
+def two_phase_rows(
+    system: str,
+    gin: GroupInput,
+    result: GroupResult,
+    seg_results: list[GroupResult],
+    k_eff: float,
+    temperature: float,
+    md_energy: float | None,
+    note: str,
+) -> list[TableRow]:
+    """Rows of one group (method ``2pt``, basis ``per_mole_molecules``).
+
+    Entropy and heat capacity (J/(mol K)), the entropy of each component, the zero-point
+    energy of the solid-like parts (kJ/mol), and the energy and Helmholtz free energy
+    (kJ/mol): their corrections always, absolute values with the MD energy.
+
+    Parameters
+    ----------
+    system : str
+        Value of the ``system`` column.
+    gin : GroupInput
+        The group (its name is used).
+    result, seg_results : GroupResult, list of GroupResult
+        2PT of the averaged spectrum and of each segment (empty: no standard errors).
+    k_eff : float
+        Effective number of independent segments.
+    temperature : float
+        Temperature, K.
+    md_energy : float or None
+        Mean total MD energy per mole of molecules, kJ/mol (None: not given).
+    note : str
+        Note of the entropy and heat-capacity rows (the model choices).
+    """
+    R = C.gas_constant_J_per_mol_K
+    rows = []
+
+    def se(values):
+        arr = np.asarray(values, dtype=float)
+        return float(segment_standard_error(arr[:, None], k_eff)[0]) if arr.size >= 2 else float("nan")
+
+    def per_seg(attr, comp=None):
+        if comp is None:
+            return [getattr(r, attr) for r in seg_results]
+        return [getattr(r.components[comp], attr) for r in seg_results]
+
+    base = {"system": system, "group": gin.name, "method": "2pt", "temperature_K": temperature,
+            "basis": "per_mole_molecules"}
+    for prop in ("entropy", "heat_capacity"):
+        q = getattr(result, prop) * R
+        c = getattr(result, prop + "_classical") * R
+        qs = np.array(per_seg(prop)) * R
+        cs = np.array(per_seg(prop + "_classical")) * R
+        rows.append(TableRow(**base, property=prop, unit="J/(mol K)", classical=c, quantum=q,
+                             correction=q - c, classical_se=se(cs), quantum_se=se(qs),
+                             correction_se=se(qs - cs), classical_source="harmonic_model",
+                             note=note))
+    for comp, cres in result.components.items():
+        q, c = cres.entropy * R, cres.entropy_classical * R
+        qs = np.array(per_seg("entropy", comp)) * R
+        cs = np.array(per_seg("entropy_classical", comp)) * R
+        rows.append(TableRow(**base, property=f"entropy_{comp}", unit="J/(mol K)", classical=c,
+                             quantum=q, correction=q - c, classical_se=se(cs), quantum_se=se(qs),
+                             correction_se=se(qs - cs), classical_source="harmonic_model",
+                             note=f"{comp} part of the 2PT entropy; f = {cres.fluidicity:.4g}"))
+    de = _kJ_per_mol(result.energy_minus_classical, temperature)
+    de_s = np.array([_kJ_per_mol(v, temperature) for v in per_seg("energy_minus_classical")])
+    ds_q = np.array(per_seg("entropy")) * R
+    ds_c = np.array(per_seg("entropy_classical")) * R
+    s_q, s_c = result.entropy * R, result.entropy_classical * R
+    da = de - temperature * (s_q - s_c) * 1e-3
+    da_s = de_s - temperature * (ds_q - ds_c) * 1e-3
+    zpe = _kJ_per_mol(result.zero_point_energy, temperature)
+    zpe_s = np.array([_kJ_per_mol(v, temperature) for v in per_seg("zero_point_energy")])
+    rows.append(TableRow(**base, property="zero_point_energy", unit="kJ/mol", classical=0.0,
+                         quantum=zpe, correction=zpe, classical_se=0.0, quantum_se=se(zpe_s),
+                         correction_se=se(zpe_s), classical_source="harmonic_model",
+                         note="of the solid-like parts"))
+    if md_energy is None:
+        why = "absolute value needs --md-energy (mean MD energy per mole of molecules)"
+        rows.append(TableRow(**base, property="energy", unit="kJ/mol", correction=de,
+                             correction_se=se(de_s), note=why))
+        rows.append(TableRow(**base, property="helmholtz_free_energy", unit="kJ/mol",
+                             correction=da, correction_se=se(da_s), note=why))
+    else:
+        e_c = md_energy
+        a_c = e_c - temperature * s_c * 1e-3
+        a_s = e_c - temperature * ds_c * 1e-3
+        rows.append(TableRow(**base, property="energy", unit="kJ/mol", classical=e_c,
+                             quantum=e_c + de, correction=de, classical_se=float("nan"),
+                             quantum_se=se(de_s), correction_se=se(de_s),
+                             classical_source="md_value",
+                             note="E = E_MD + kT * integral S_solid (W_E^q - 1); E_MD error not included"))
+        rows.append(TableRow(**base, property="helmholtz_free_energy", unit="kJ/mol",
+                             classical=a_c, quantum=a_c + da, correction=da,
+                             classical_se=se(a_s), quantum_se=se(a_s + da_s),
+                             correction_se=se(da_s), classical_source="md_value",
+                             note="A = E - T S; E_MD error not included"))
+    return rows
+
+
+def model_checks(
+    gin: GroupInput,
+    result: GroupResult,
+    seg_results: list[GroupResult],
+    k_eff: float,
+    wavenumber: np.ndarray,
+) -> list[str]:
+    """Cautions on one group's 2PT result: fluidicity near 0 or 1, and a solid-like density
+    of states negative beyond 3 standard errors at low frequency (wavenumber in cm^-1)."""
+    notes = []
+    for comp, c in result.components.items():
+        if comp == "vibration":
+            continue
+        if c.fluidicity < 0.01:
+            notes.append(f"group '{gin.name}' {comp}: fluidicity {c.fluidicity:.3g} is near 0 (solid-like); "
+                         "2PT reduces to the harmonic solid")
+        elif c.fluidicity > 0.99:
+            notes.append(f"group '{gin.name}' {comp}: fluidicity {c.fluidicity:.3g} is near 1 (gas-like); "
+                         "check the density and the zero-frequency value")
+        solids = np.array([r.components[comp].solid_dos for r in seg_results]) if len(seg_results) >= 2 else None
+        if solids is not None:
+            noise = segment_standard_error(solids, k_eff)
+            # low frequency = below the mean wavenumber of the component's spectrum; above
+            # it the hard-sphere Lorentzian tail exceeding a soft-potential spectrum is a
+            # known feature of the model (Desjarlais, Phys. Rev. E 88, 062145 (2013))
+            total = c.gas_dos + c.solid_dos
+            mean = np.trapezoid(wavenumber * total, wavenumber) / np.trapezoid(total, wavenumber)
+            low = wavenumber <= mean
+            bad = low & (c.solid_dos < -3.0 * noise) & (c.solid_dos < 0)
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                notes.append(
+                    f"group '{gin.name}' {comp}: the solid-like density of states is negative beyond "
+                    f"3 standard errors at low frequency, {wavenumber[k]:.3g} cm-1 (min {c.solid_dos.min() / gin.molecule_count:.3g} "
+                    "cm per molecule); the hard-sphere gas exceeds the spectrum there")
+    return notes
