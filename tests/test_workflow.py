@@ -179,13 +179,13 @@ def test_snakefile_requires_snakemake_9_14_8():
     assert 'min_version("9.14.8")' in text
 
 
-def test_every_rule_declares_log_benchmark_threads_resources_conda():
+def test_every_rule_declares_log_benchmark_threads_resources():
     for smk in (REPO / "workflow" / "rules").glob("*.smk"):
         text = smk.read_text(encoding="utf-8")
         for rule in re.split(r"\n(?=rule )", text)[1:]:
             name = rule.split(":", 1)[0]
             for directive in ("log:", "benchmark:", "threads:", "resources:", "mem_mb=",
-                              "runtime=", "conda:"):
+                              "runtime="):
                 assert f"    {directive}" in rule or f"        {directive}" in rule, \
                     f"{smk.name} {name} lacks {directive}"
             shell = rule.split("shell:", 1)[1]
@@ -195,6 +195,22 @@ def test_every_rule_declares_log_benchmark_threads_resources_conda():
                 assert field.endswith(":q") or field in ("threads", "wildcards.block_index",
                                                          "wildcards.block_count"), \
                     f"{smk.name} {name}: unquoted {{{field}}}"
+
+
+def test_no_software_deployment_is_promised():
+    """Issue 15: a conda environment cannot be built or tested here (no conda channel is
+    reachable), and one that pip-installs an unpublished qcorr cannot work; so no rule
+    declares one, the catalog claims none, and the README says jobs use the environment
+    Snakemake runs in."""
+    for smk in [REPO / "workflow" / "Snakefile", *(REPO / "workflow" / "rules").glob("*.smk")]:
+        assert "conda:" not in smk.read_text(encoding="utf-8"), smk.name
+    assert not (REPO / "workflow" / "envs").exists()
+    catalog = (REPO / ".snakemake-workflow-catalog.yml").read_text(encoding="utf-8")
+    for flag in ("conda", "apptainer", "apptainer+conda"):
+        assert re.search(rf"^\s*{re.escape(flag)}: false$", catalog, flags=re.MULTILINE), flag
+    readme = (REPO / "README.md").read_text(encoding="utf-8")
+    assert "software-deployment-method conda" not in readme
+    assert "environment Snakemake runs in" in readme
 
 
 def test_snakefmt_is_clean():
@@ -279,6 +295,15 @@ def test_demo_fills_results(demo_run):
         assert (results / "spectra" / f"{sid}.nc").is_file()
         assert (copy / "logs" / "harmonic_properties" / f"{sid}.log").is_file()
         assert (results / "benchmarks" / "harmonic_properties" / f"{sid}.tsv").is_file()
+    # issue 15: a job's log is not a terminal, so the frame loop writes heartbeat lines
+    # (one per tenth of the frames, with the rate and the time left) instead of a bar
+    logs = sorted((copy / "logs").glob("spectrum*/**/*.log"))
+    assert logs
+    for log in logs:
+        beats = [line for line in log.read_text().splitlines()
+                 if re.match(r"qcorr: frames \d+/\d+ \(\d+ %\), [0-9.]+ frames/s, about "
+                             r"\d+:\d\d:\d\d left$", line)]
+        assert 5 <= len(beats) <= 11, (log, beats)
     # temporary frame-block files are removed once combined
     assert not list((results / "spectrum_blocks").rglob("*.nc")) if (
         results / "spectrum_blocks").exists() else True
@@ -495,14 +520,19 @@ rule count_rows:
             handle.write(str(len(pandas.read_csv(input[0]))))
 
 
-rule all:
-    default_target: True
+# the host's own target: no default_target directive, after 'use rule *', so Snakemake
+# would take the module's first rule as the default if the module did not give it back
+rule host_results:
     input:
         rules.qcorr_all.input,
         "results/row_count.txt",
 ''')
     result = snakemake(["--cores", "2"], host)
     assert result.returncode == 0, explain(result)
+    # issue 15: the module never becomes the host's default target, and says nothing
+    assert (host / "results" / "row_count.txt").is_file(), explain(result)
+    assert "warning" not in result.stderr.lower() and "localrules" not in result.stderr, \
+        explain(result)
     table = pd.read_csv(host / "results" / "qcorr" / "corrected_properties.csv")
     assert set(table["system"]) == {"crystal"}
     assert int((host / "results" / "row_count.txt").read_text()) == len(table)
