@@ -539,3 +539,71 @@ rule host_results:
     assert (host / "results" / "qcorr" / "plots" / "crystal_spectrum.png").is_file()
     assert (host / "logs" / "qcorr" / "spectrum" / "crystal.log").is_file()
     assert (host / "benchmarks" / "qcorr" / "spectrum" / "crystal.tsv").is_file()
+
+
+# ----------------------------------------------------------------------------- deployment
+
+
+@pytest.mark.slow
+def test_deployed_with_snakedeploy_gives_the_same_table(demo_run, tmp_path):
+    """Issue 15: a user sets the workflow up in a directory of their own the Snakemake way
+    (``snakedeploy deploy-workflow``: the workflow becomes a module, config/ is copied) and
+    gets the same table as the repository's own run.
+
+    The clone is local here (no network), and snakedeploy's local provider writes the
+    module's path relative to the clone; the test gives the clone's absolute path in its
+    place, which is what ``github("OWNER/qcorr", path="workflow/Snakefile", tag=...)``
+    resolves to for a published release.
+    """
+    snakedeploy = shutil.which("snakedeploy")
+    if snakedeploy is None:
+        pytest.fail("snakedeploy is not installed (it is in the test extras)")
+    copy, _, _ = demo_run
+    clone = fresh_copy(tmp_path / "qcorr")
+    user = tmp_path / "my_project"
+    result = subprocess.run([snakedeploy, "deploy-workflow", str(clone), str(user)],
+                            capture_output=True, text=True, timeout=300, check=False)
+    assert result.returncode == 0, explain(result)
+    assert (user / "config" / "config.yaml").is_file()
+    snakefile = user / "workflow" / "Snakefile"
+    text = snakefile.read_text(encoding="utf-8")
+    assert re.search(r"^module \w+:", text, flags=re.MULTILINE) and "use rule * from" in text
+    text, replaced = re.subn(r'snakefile:\s*\n\s*"workflow/Snakefile"',
+                             f'snakefile:\n        "{clone / "workflow" / "Snakefile"}"', text)
+    assert replaced == 1, text
+    snakefile.write_text(text, encoding="utf-8")
+    # the user's own sheet: the demo crystal at 100 K, its files given by absolute path
+    row = demo_sheet().set_index("system").loc["copper_100K"]
+    (user / "config" / "systems.tsv").write_text(
+        "system\ttopology\ttrajectory\ttemperature_K\tsegment_ps\n"
+        f"copper_100K\t{clone / row['topology']}\t{clone / row['trajectory']}\t"
+        f"{row['temperature_K']}\t{row['segment_ps']}\n", encoding="utf-8")
+    result = snakemake(["--cores", "2"], user)
+    assert result.returncode == 0, explain(result)
+    deployed = pd.read_csv(user / "results" / "corrected_properties.csv")
+    ours = pd.read_csv(copy / "results" / "corrected_properties.csv")
+    ours = ours[ours["system"] == "copper_100K"]
+    assert_tables_equal(deployed, ours, rtol=1e-12)
+
+
+def test_license_and_citation_file():
+    """Issue 15: the LICENSE pyproject names, and a CITATION.cff (Citation File Format
+    1.2.0) that names the methods to cite."""
+    import tomllib
+
+    import yaml
+
+    pyproject = tomllib.loads((REPO / "pyproject.toml").read_text(encoding="utf-8"))
+    assert pyproject["project"]["license"]["text"] == "MIT"
+    assert (REPO / "LICENSE").read_text(encoding="utf-8").startswith("MIT License")
+    citation = yaml.safe_load((REPO / "CITATION.cff").read_text(encoding="utf-8"))
+    assert citation["cff-version"] == "1.2.0"
+    for key in ("message", "title", "authors", "license", "version", "references"):
+        assert citation.get(key), key
+    assert citation["version"] == pyproject["project"]["version"]
+    assert citation["license"] == "MIT"
+    cited = {(ref["journal"], ref["volume"], ref["start"]) for ref in citation["references"]
+             if "journal" in ref}
+    assert ("The Journal of Chemical Physics", 79, 2375) in cited  # Berens et al. 1983
+    assert ("The Journal of Chemical Physics", 119, 11792) in cited  # Lin et al. 2003
+    assert ("The Journal of Physical Chemistry B", 114, 8191) in cited  # Lin et al. 2010
