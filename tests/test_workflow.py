@@ -179,13 +179,13 @@ def test_snakefile_requires_snakemake_9_14_8():
     assert 'min_version("9.14.8")' in text
 
 
-def test_every_rule_declares_log_benchmark_threads_resources_conda():
+def test_every_rule_declares_log_benchmark_threads_resources():
     for smk in (REPO / "workflow" / "rules").glob("*.smk"):
         text = smk.read_text(encoding="utf-8")
         for rule in re.split(r"\n(?=rule )", text)[1:]:
             name = rule.split(":", 1)[0]
             for directive in ("log:", "benchmark:", "threads:", "resources:", "mem_mb=",
-                              "runtime=", "conda:"):
+                              "runtime="):
                 assert f"    {directive}" in rule or f"        {directive}" in rule, \
                     f"{smk.name} {name} lacks {directive}"
             shell = rule.split("shell:", 1)[1]
@@ -195,6 +195,22 @@ def test_every_rule_declares_log_benchmark_threads_resources_conda():
                 assert field.endswith(":q") or field in ("threads", "wildcards.block_index",
                                                          "wildcards.block_count"), \
                     f"{smk.name} {name}: unquoted {{{field}}}"
+
+
+def test_no_software_deployment_is_promised():
+    """Issue 15: a conda environment cannot be built or tested here (no conda channel is
+    reachable), and one that pip-installs an unpublished qcorr cannot work; so no rule
+    declares one, the catalog claims none, and the README says jobs use the environment
+    Snakemake runs in."""
+    for smk in [REPO / "workflow" / "Snakefile", *(REPO / "workflow" / "rules").glob("*.smk")]:
+        assert "conda:" not in smk.read_text(encoding="utf-8"), smk.name
+    assert not (REPO / "workflow" / "envs").exists()
+    catalog = (REPO / ".snakemake-workflow-catalog.yml").read_text(encoding="utf-8")
+    for flag in ("conda", "apptainer", "apptainer+conda"):
+        assert re.search(rf"^\s*{re.escape(flag)}: false$", catalog, flags=re.MULTILINE), flag
+    readme = (REPO / "README.md").read_text(encoding="utf-8")
+    assert "software-deployment-method conda" not in readme
+    assert "environment Snakemake runs in" in readme
 
 
 def test_snakefmt_is_clean():
@@ -215,8 +231,15 @@ def test_dry_run_and_lint_are_clean(demo_copy):
     assert counts.get("harmonic_properties") == len(sheet)
     assert counts.get("plots") == len(sheet)
     lint = snakemake(["--lint"], demo_copy, timeout=300)
-    assert lint.returncode == 0, explain(lint)
-    assert "Congratulations" in lint.stdout + lint.stderr
+    # the one lint allowed: no rule declares a conda environment or container, on purpose
+    # (issue 15: qcorr is on no channel yet, so such an environment could not install it)
+    items = re.findall(r"^\s+\* (.+?):?$", lint.stdout + lint.stderr, flags=re.MULTILINE)
+    assert set(items) <= {"Specify a conda environment or container for each rule."}, \
+        explain(lint)
+    rules_linted = re.findall(r"^Lints for rule (\w+)", lint.stdout + lint.stderr,
+                              flags=re.MULTILINE)
+    assert "Congratulations" in lint.stdout + lint.stderr or len(rules_linted) == len(items), \
+        explain(lint)
     assert not (demo_copy / "results").exists()
 
 
@@ -279,6 +302,15 @@ def test_demo_fills_results(demo_run):
         assert (results / "spectra" / f"{sid}.nc").is_file()
         assert (copy / "logs" / "harmonic_properties" / f"{sid}.log").is_file()
         assert (results / "benchmarks" / "harmonic_properties" / f"{sid}.tsv").is_file()
+    # issue 15: a job's log is not a terminal, so the frame loop writes heartbeat lines
+    # (one per tenth of the frames, with the rate and the time left) instead of a bar
+    logs = sorted((copy / "logs").glob("spectrum*/**/*.log"))
+    assert logs
+    for log in logs:
+        beats = [line for line in log.read_text().splitlines()
+                 if re.match(r"qcorr: frames \d+/\d+ \(\d+ %\), [0-9.]+ frames/s, about "
+                             r"\d+:\d\d:\d\d left$", line)]
+        assert 5 <= len(beats) <= 11, (log, beats)
     # temporary frame-block files are removed once combined
     assert not list((results / "spectrum_blocks").rglob("*.nc")) if (
         results / "spectrum_blocks").exists() else True
@@ -469,6 +501,14 @@ def test_use_as_module_from_a_host_workflow(tmp_path):
 configfile: "config/config.yaml"
 
 
+# the host's own target, its first rule (Snakemake's default target), with no
+# default_target directive: the module must not take it over (issue 15)
+rule host_results:
+    input:
+        "results/qcorr/plots/crystal_spectrum.png",
+        "results/row_count.txt",
+
+
 module qcorr_workflow:
     snakefile:
         "{REPO / "workflow" / "Snakefile"}"
@@ -493,19 +533,86 @@ rule count_rows:
 
         with open(output[0], "w") as handle:
             handle.write(str(len(pandas.read_csv(input[0]))))
-
-
-rule all:
-    default_target: True
-    input:
-        rules.qcorr_all.input,
-        "results/row_count.txt",
 ''')
     result = snakemake(["--cores", "2"], host)
     assert result.returncode == 0, explain(result)
+    # issue 15: the module never becomes the host's default target, and says nothing
+    assert (host / "results" / "row_count.txt").is_file(), explain(result)
+    assert "warning" not in result.stderr.lower() and "localrules" not in result.stderr, \
+        explain(result)
     table = pd.read_csv(host / "results" / "qcorr" / "corrected_properties.csv")
     assert set(table["system"]) == {"crystal"}
     assert int((host / "results" / "row_count.txt").read_text()) == len(table)
     assert (host / "results" / "qcorr" / "plots" / "crystal_spectrum.png").is_file()
     assert (host / "logs" / "qcorr" / "spectrum" / "crystal.log").is_file()
     assert (host / "benchmarks" / "qcorr" / "spectrum" / "crystal.tsv").is_file()
+
+
+# ----------------------------------------------------------------------------- deployment
+
+
+@pytest.mark.slow
+def test_deployed_with_snakedeploy_gives_the_same_table(demo_run, tmp_path):
+    """Issue 15: a user sets the workflow up in a directory of their own the Snakemake way
+    (``snakedeploy deploy-workflow``: the workflow becomes a module, config/ is copied) and
+    gets the same table as the repository's own run.
+
+    The clone is local here (no network), and snakedeploy's local provider writes the
+    module's path relative to the clone; the test gives the clone's absolute path in its
+    place, which is what ``github("OWNER/qcorr", path="workflow/Snakefile", tag=...)``
+    resolves to for a published release.
+    """
+    snakedeploy = shutil.which("snakedeploy")
+    if snakedeploy is None:
+        pytest.fail("snakedeploy is not installed (it is in the test extras)")
+    copy, _, _ = demo_run
+    clone = fresh_copy(tmp_path / "qcorr")
+    user = tmp_path / "my_project"
+    result = subprocess.run([snakedeploy, "deploy-workflow", str(clone), str(user),
+                             "--tag", "v0.1.0"],
+                            capture_output=True, text=True, timeout=300, check=False)
+    assert result.returncode == 0, explain(result)
+    assert (user / "config" / "config.yaml").is_file()
+    snakefile = user / "workflow" / "Snakefile"
+    text = snakefile.read_text(encoding="utf-8")
+    assert re.search(r"^module \w+:", text, flags=re.MULTILINE) and "use rule * from" in text
+    text, replaced = re.subn(r'snakefile:\s*\n\s*"workflow/Snakefile"',
+                             f'snakefile:\n        "{clone / "workflow" / "Snakefile"}"', text)
+    assert replaced == 1, text
+    snakefile.write_text(text, encoding="utf-8")
+    # the user's own sheet: the demo crystal at 100 K, its files given by absolute path
+    sheet = demo_sheet()
+    sheet = sheet[sheet["system"] == "copper_100K"].copy()
+    for column in ("topology", "trajectory"):
+        sheet[column] = [";".join(str(clone / p.strip()) for p in cell.split(";"))
+                         for cell in sheet[column]]
+    sheet.to_csv(user / "config" / "systems.tsv", sep="\t", index=False)
+    result = snakemake(["--cores", "2"], user)
+    assert result.returncode == 0, explain(result)
+    deployed = pd.read_csv(user / "results" / "corrected_properties.csv")
+    ours = pd.read_csv(copy / "results" / "corrected_properties.csv")
+    ours = ours[ours["system"] == "copper_100K"]
+    assert_tables_equal(deployed, ours, rtol=1e-12)
+
+
+def test_license_and_citation_file():
+    """Issue 15: the LICENSE pyproject names, and a CITATION.cff (Citation File Format
+    1.2.0) that names the methods to cite."""
+    import tomllib
+
+    import yaml
+
+    pyproject = tomllib.loads((REPO / "pyproject.toml").read_text(encoding="utf-8"))
+    assert pyproject["project"]["license"]["text"] == "MIT"
+    assert (REPO / "LICENSE").read_text(encoding="utf-8").startswith("MIT License")
+    citation = yaml.safe_load((REPO / "CITATION.cff").read_text(encoding="utf-8"))
+    assert citation["cff-version"] == "1.2.0"
+    for key in ("message", "title", "authors", "license", "version", "references"):
+        assert citation.get(key), key
+    assert citation["version"] == pyproject["project"]["version"]
+    assert citation["license"] == "MIT"
+    cited = {(ref["journal"], ref["volume"], ref["start"]) for ref in citation["references"]
+             if "journal" in ref}
+    assert ("The Journal of Chemical Physics", 79, 2375) in cited  # Berens et al. 1983
+    assert ("The Journal of Chemical Physics", 119, 11792) in cited  # Lin et al. 2003
+    assert ("The Journal of Physical Chemistry B", 114, 8191) in cited  # Lin et al. 2010

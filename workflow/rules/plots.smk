@@ -27,8 +27,6 @@ rule plots:
         "<logs>/plots/{system}.log",
     benchmark:
         "<benchmarks>/plots/{system}.tsv"
-    conda:
-        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,

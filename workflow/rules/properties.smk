@@ -12,8 +12,6 @@ rule harmonic_properties:
         "<logs>/harmonic_properties/{system}.log",
     benchmark:
         "<benchmarks>/harmonic_properties/{system}.tsv"
-    conda:
-        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
@@ -36,8 +34,6 @@ rule liquid_properties:
         "<benchmarks>/liquid_properties/{system}.tsv"
     wildcard_constraints:
         system=alternatives(LIQUID_IDS),
-    conda:
-        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
@@ -63,8 +59,7 @@ rule merge_tables:
         "<logs>/merge_tables/merge.log",
     benchmark:
         "<benchmarks>/merge_tables/merge.tsv"
-    conda:
-        "../envs/qcorr.yaml"
+    localrule: True
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,

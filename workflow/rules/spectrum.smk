@@ -14,8 +14,6 @@ rule spectrum:
         "<benchmarks>/spectrum/{system}.tsv"
     wildcard_constraints:
         system=alternatives(SINGLE_IDS),
-    conda:
-        "../envs/qcorr.yaml"
     threads: 2
     resources:
         mem_mb=get_spectrum_mem_mb,
@@ -24,7 +22,7 @@ rule spectrum:
         options=get_spectrum_options,
     shell:
         "qcorr spectrum --topology {input.topology:q} --trajectory {input.trajectory:q}"
-        " {params.options:q} --threads {threads} --progress never"
+        " {params.options:q} --threads {threads}"
         " --output {output:q} > {log:q} 2>&1"
 
 
@@ -42,8 +40,6 @@ rule spectrum_block:
         "<benchmarks>/spectrum_block/{system}/block-{block_index}-of-{block_count}.tsv"
     wildcard_constraints:
         system=alternatives(BLOCKED_IDS),
-    conda:
-        "../envs/qcorr.yaml"
     threads: 2
     resources:
         mem_mb=get_spectrum_mem_mb,
@@ -53,7 +49,7 @@ rule spectrum_block:
     shell:
         "qcorr spectrum --topology {input.topology:q} --trajectory {input.trajectory:q}"
         " {params.options:q} --block {wildcards.block_index}-of-{wildcards.block_count}"
-        " --threads {threads} --progress never --output {output:q} > {log:q} 2>&1"
+        " --threads {threads} --output {output:q} > {log:q} 2>&1"
 
 
 rule combine_blocks:
@@ -67,8 +63,6 @@ rule combine_blocks:
         "<benchmarks>/combine_blocks/{system}.tsv"
     wildcard_constraints:
         system=alternatives(BLOCKED_IDS),
-    conda:
-        "../envs/qcorr.yaml"
     threads: 1
     resources:
         mem_mb=get_table_mem_mb,
