@@ -5,7 +5,9 @@ one-line message).  :func:`run_diagnostics` runs all of them on a spectrum
 dataset; :func:`announce` emits the warnings as :class:`~qcorr.errors.QcorrWarning`.
 The list is stored in the spectrum file as the JSON attribute ``diagnostics``.
 
-Thresholds (module constants) are common practice, not published standards:
+Thresholds (module constants): those of the aliasing, resolution and centre-of-mass checks
+are common practice, not published standards; the temperature and sum-rule limit is
+statistical and derived below ("Kinetic temperature").
 
 * aliasing: more than :data:`ALIASING_FRACTION` of a group's spectral weight
   lies in the top :data:`ALIASING_BAND` of the band below Nyquist.  Aliasing
