@@ -32,26 +32,8 @@ Reference status words: *handbook* / *paper* / *standard* (read from the named s
 *computed* (an independent calculation made here from the named formula), *common
 practice* (a fact of the trade).  The real-substance data come from ``tests/reference_data.py``.
 
-References
-----------
-.. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, J. Chem. Phys. 79, 2375 (1983).
-.. [2] CRC Handbook of Chemistry and Physics, 97th ed., "Heat capacity of the elements at 25 °C"
-       (read in a secondary table citing it).
-.. [3] NIST Cryogenic Technologies Group, "Material Properties: OFHC Copper (UNS C10100/C10200)",
-       curve fits of the specific heat and the linear expansion coefficient, 4–300 K.
-.. [4] D. L. Martin, Phys. Rev. B 8, 5357 (1973): γ and θ₀ of copper.
-.. [5] E. Wigner, Phys. Rev. 40, 749 (1932); J. G. Kirkwood, Phys. Rev. 44, 31 (1933);
-       L. D. Landau, E. M. Lifshitz, Statistical Physics Part 1, §33.
-.. [6] Á. Berta, D. Ferenc, I. Bakó, Á. Madarász, J. Chem. Theory Comput. 16, 3316 (2020),
-       Table 1.
-.. [7] NIST Computational Chemistry Comparison and Benchmark Database (CCCBDB), H2O
-       experimental vibrational fundamentals 3657, 1595, 3756 cm⁻¹.
-.. [8] IAPWS R6-95(2018), Revised Release on the IAPWS Formulation 1995 for the Thermodynamic
-       Properties of Ordinary Water Substance (W. Wagner, A. Pruß, J. Phys. Chem. Ref. Data
-       31, 387 (2002)), via the ``iapws`` package.
-.. [9] Ch. Tegeler, R. Span, W. Wagner, J. Phys. Chem. Ref. Data 28, 779 (1999), via CoolProp.
-.. [10] M. Born, K. Huang, Dynamical Theory of Crystal Lattices (Oxford, 1954): harmonic
-        lattice dynamics from the force-constant matrix (common practice).
+References: the numbered list :data:`REFERENCES`, printed at the end of the page; [n] in
+the texts below points into it.
 """
 
 from __future__ import annotations
@@ -87,6 +69,20 @@ from qcorr.safe_write import write_text_atomic  # noqa: E402
 
 ROOT = Path(__file__).resolve().parent.parent
 DEFAULT_OUTPUT = ROOT / "docs" / "validation.md"
+
+#: numbered references cited as [n] in the row texts (printed on the page)
+REFERENCES = (
+    'P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, J. Chem. Phys. 79, 2375 (1983).',
+    'CRC Handbook of Chemistry and Physics, 97th ed., "Heat capacity of the elements at 25 °C" (read in a secondary table citing it).',
+    'NIST Cryogenic Technologies Group, "Material Properties: OFHC Copper (UNS C10100/C10200)", curve fits of the specific heat and the linear expansion coefficient, 4–300 K.',
+    'D. L. Martin, Phys. Rev. B 8, 5357 (1973): γ and θ₀ of copper.',
+    'E. Wigner, Phys. Rev. 40, 749 (1932); J. G. Kirkwood, Phys. Rev. 44, 31 (1933); L. D. Landau, E. M. Lifshitz, Statistical Physics Part 1, §33.',
+    'Á. Berta, D. Ferenc, I. Bakó, Á. Madarász, J. Chem. Theory Comput. 16, 3316 (2020), Table 1.',
+    'NIST Computational Chemistry Comparison and Benchmark Database (CCCBDB), H2O experimental vibrational fundamentals 3657, 1595, 3756 cm⁻¹.',
+    'IAPWS R6-95(2018), Revised Release on the IAPWS Formulation 1995 for the Thermodynamic Properties of Ordinary Water Substance (W. Wagner, A. Pruß, J. Phys. Chem. Ref. Data 31, 387 (2002)), via the ``iapws`` package.',
+    'Ch. Tegeler, R. Span, W. Wagner, J. Phys. Chem. Ref. Data 28, 779 (1999), via CoolProp.',
+    'M. Born, K. Huang, Dynamical Theory of Crystal Lattices (Oxford, 1954): harmonic lattice dynamics from the force-constant matrix (common practice).',
+)
 
 #: statistical parts of tolerances: this many standard errors ("3 standard errors", common practice)
 STANDARD_ERRORS = 3.0
@@ -895,6 +891,9 @@ def render(comparisons: list[Comparison], settings: dict, seconds: dict[str, flo
             + ". Run the script without `--systems` for all of them.",
             "",
         ]
+    lines += ["## References", ""]
+    lines += [f"{i}. {text}" for i, text in enumerate(REFERENCES, start=1)]
+    lines.append("")
     lines += [
         "## Reproducing this page",
         "",
