@@ -184,10 +184,7 @@ def test_diagnostics_fire_on_their_thresholds():
                                     "centre_of_mass_drift": "ok", "sum_rule": "ok"}
     assert status(_assembled(shape="flat"))["aliasing"] == "warning"  # 5 % of the weight near Nyquist
     assert status(_assembled(n_segments=3))["resolution"] == "warning"
-    s = status(_assembled(raw_scale=1.025))  # 2.5 % apart: sum rule (2 %) but not temperature (3 %)
-    assert s["sum_rule"] == "warning" and s["temperature"] == "ok"
-    s = status(_assembled(raw_scale=0.95))
-    assert s["sum_rule"] == "warning" and s["temperature"] == "warning"
+    # temperature and sum rule: limits from the segment scatter, tested in tests/test_diagnostics.py
     # COM: M V^2 = 3kT * 11 at 300 K (kT in u A^2 ps^-2 from CODATA via scipy)
     from scipy import constants as sc
 
@@ -195,7 +192,7 @@ def test_diagnostics_fire_on_their_thresholds():
     assert status(_assembled(com_mv2=3 * kT * 11))["centre_of_mass_drift"] == "warning"
     assert status(_assembled(com_mv2=3 * kT * 9))["centre_of_mass_drift"] == "ok"
     with pytest.warns(diagnostics.QcorrWarning) as caught:
-        diagnostics.announce(diagnostics.run_diagnostics(_assembled(raw_scale=0.9)))
+        diagnostics.announce(diagnostics.run_diagnostics(_assembled(raw_scale=0.5)))
     assert sorted(str(w.message).split(":")[0] for w in caught) == ["sum_rule", "temperature"]
 
 
