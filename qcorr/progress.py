@@ -50,7 +50,7 @@ def progress_enabled(mode: ProgressMode = "auto") -> bool:
 
 
 def _clock_text(seconds: float) -> str:
-    seconds = max(0, int(round(seconds)))
+    seconds = max(0, round(seconds))
     return f"{seconds // 3600}:{seconds % 3600 // 60:02d}:{seconds % 60:02d}"
 
 
@@ -105,10 +105,8 @@ def progress(
     start = clock()
     step = max(1, math.ceil(total / HEARTBEAT_LINES)) if total else 0
     last_line = start
-    done = 0
-    for item in items:
+    for done, item in enumerate(items, start=1):
         yield item
-        done += 1
         now = clock()
         if (step and (done % step == 0 or done == total)) or (
                 not step and now - last_line >= HEARTBEAT_SECONDS):

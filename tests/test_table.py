@@ -14,18 +14,18 @@ import pandas as pd
 import pytest
 
 from qcorr.errors import ConfigError
-from qcorr.outputs import table
+from qcorr.outputs import summary, table
 
 
 def _rows(system: str = "a") -> list[table.TableRow]:
     return [
         table.TableRow(system=system, group="total", method="harmonic", property="heat_capacity",
-                       temperature_K=298.15, basis="per_mole_molecules", unit="J/(mol K)",
+                       temperature_K=298.15, basis="per_mole_molecules", unit="J mol-1 K-1",
                        classical=24.943, quantum=23.368123456789012, correction=-1.575,
                        classical_se=0.001, quantum_se=0.001, correction_se=1e-4,
                        classical_source="harmonic_model"),
         table.TableRow(system=system, group="total", method="harmonic", property="entropy",
-                       temperature_K=298.15, basis="per_mole_molecules", unit="J/(mol K)",
+                       temperature_K=298.15, basis="per_mole_molecules", unit="J mol-1 K-1",
                        correction=0.8, correction_se=0.01,
                        note="absolute harmonic entropy refused: diffusing group; use 'qcorr liquid'"),
     ]
@@ -136,10 +136,11 @@ def test_merge_refuses_missing_sidecar_and_duplicates(tmp_path) -> None:
 
 def test_format_table_shows_errors_and_one_basis() -> None:
     frame = table.rows_to_frame(_rows())
-    text = table.format_table(frame, "per_mole_molecules")
-    assert "23.3681 ± 0.001" in text
+    text = summary.format_table(frame, "per_mole_molecules")
+    # PDG rounding: an error of 0.001 keeps two digits (0.0010), the value as many places
+    assert "23.3681 ± 0.0010" in text
     assert "heat_capacity" in text and "entropy" in text
-    assert table.format_table(frame, "per_system") == "(no rows)"
+    assert summary.format_table(frame, "per_system") == "(no rows)"
 
 
 def test_failure_after_csv_written_leaves_nothing(tmp_path, monkeypatch) -> None:
@@ -161,9 +162,9 @@ def test_failure_after_csv_written_leaves_nothing(tmp_path, monkeypatch) -> None
 
 def test_format_table_marks_refused_cells() -> None:
     frame = table.rows_to_frame(_rows())
-    text = table.format_table(frame)
+    text = summary.format_table(frame)
     entropy_line = next(line for line in text.splitlines() if "entropy" in line)
-    assert "refused (see CSV note)" in entropy_line and "0.8 ± 0.01" in entropy_line
+    assert "refused (see CSV note)" in entropy_line and "0.800 ± 0.010" in entropy_line
 
 
 def test_attrs_are_the_sidecar_both_ways(tmp_path) -> None:

@@ -204,10 +204,10 @@ def test_registry_and_unknown_property_message() -> None:
         "entropy",
         "helmholtz_free_energy",
     ]
-    assert w.get_property("entropy").molar_unit == "J/(mol K)"
-    assert w.get_property("energy").molar_unit == "kJ/mol"
+    assert w.get_property("entropy").molar_unit == "J mol-1 K-1"
+    assert w.get_property("energy").molar_unit == "kJ mol-1"
     assert w.get_property("energy").system_unit == "kJ"
-    assert w.get_property("heat_capacity").system_unit == "J/K"
+    assert w.get_property("heat_capacity").system_unit == "J K-1"
     with pytest.raises(ConfigError) as info:
         w.get_property("enthalpy", option="--properties")
     message = str(info.value)

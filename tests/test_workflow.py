@@ -355,13 +355,60 @@ def test_second_run_does_nothing_and_touch_reruns_only_dependents(demo_run):
             assert changed, f"{path} was not remade"
 
 
+def embedded_pages(report_html: str) -> list[str]:
+    """The HTML results a Snakemake report embeds (base64 data URIs), decoded."""
+    import base64
+
+    pages = []
+    for blob in re.findall(r"data:text/html[^,\"']*;base64,([A-Za-z0-9+/=]+)", report_html):
+        pages.append(base64.b64decode(blob).decode("utf-8", errors="replace"))
+    return pages
+
+
+def assert_report_shows_the_table(report: Path, table: pd.DataFrame) -> None:
+    """The report embeds the rounded, sortable table with a row of every system."""
+    html = report.read_text(encoding="utf-8", errors="replace")
+    assert "corrected_properties" in html and "cumulative" in html
+    pages = [p for p in embedded_pages(html) if 'class="sortable"' in p]
+    assert len(pages) == 1, "the report holds no (or more than one) rounded table"
+    rows = re.findall(r"<tr><td>([^<]+)</td><td>([^<]+)</td><td>([^<]+)</td>", pages[0])
+    assert {r[0] for r in rows} == set(table["system"])
+    assert ("copper_100K", "total", "harmonic") in rows
+
+
 @pytest.mark.slow
 def test_report_builds(demo_run):
     copy, _, _ = demo_run
     result = snakemake(["--report", "results/report.html"], copy)
     assert result.returncode == 0, explain(result)
-    html = (copy / "results" / "report.html").read_text(encoding="utf-8", errors="replace")
-    assert "corrected_properties" in html and "cumulative" in html
+    table = pd.read_csv(copy / "results" / "corrected_properties.csv")
+    assert_report_shows_the_table(copy / "results" / "report.html", table)
+
+
+@pytest.mark.slow
+def test_report_after_the_readme_install_in_a_fresh_environment(tmp_path):
+    """Issue 15: right after the README's install command in a new virtual environment
+    (nothing else installed), the demo runs and 'snakemake --report' builds a report that
+    shows the table's rows (it once stopped: pygments was missing)."""
+    import venv
+
+    copy = fresh_copy(tmp_path / "clone")
+    env_dir = tmp_path / "venv"
+    venv.EnvBuilder(with_pip=True).create(env_dir)
+    bindir = env_dir / ("Scripts" if os.name == "nt" else "bin")
+    install, run = (part.strip() for part in readme_commands()[0].split("&&"))
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME")}
+    env["PATH"] = os.pathsep.join([str(bindir), env.get("PATH", "")])
+    env["VIRTUAL_ENV"] = str(env_dir)
+    steps = [shlex.split(install), shlex.split(run),
+             ["snakemake", "--report", "results/report.html"]]
+    for argv in steps:
+        argv[0] = str(bindir / argv[0])
+        result = subprocess.run(argv, cwd=copy, env=env, capture_output=True, text=True,
+                                timeout=RUN_TIMEOUT_S, check=False)
+        assert result.returncode == 0, explain(result)
+    table = pd.read_csv(copy / "results" / "corrected_properties.csv")
+    assert_report_shows_the_table(copy / "results" / "report.html", table)
 
 
 # ----------------------------------------------------------------------------- bad sheets

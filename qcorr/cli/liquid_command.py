@@ -13,7 +13,7 @@ import sys
 from pathlib import Path
 
 from qcorr.errors import ConfigError
-from qcorr.outputs import table
+from qcorr.outputs import summary, table
 from qcorr.safe_write import atomic_path
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo import twophase_table
@@ -146,7 +146,7 @@ def run(args: argparse.Namespace) -> int:
             split.to_netcdf(tmp, engine="h5netcdf")
     table.write_table(frame, output)
     if not args.quiet:
-        print(table.summary_text(frame, "2PT values per mole of molecules."))
+        print(summary.summary_text(frame, "2PT values per mole of molecules."))
         print(f"wrote {output} and {table.sidecar_path(output)}")
     return 0
 

@@ -7,31 +7,52 @@ from __future__ import annotations
 
 import argparse
 
-from qcorr.outputs import table
+from qcorr.outputs import summary, table
+from qcorr.safe_write import write_text_atomic
 
 NAME = "merge"
 HELP = "concatenate property tables (CSV + JSON sidecar) of many systems into one"
 DESCRIPTION = (
     "Concatenate tables written by 'qcorr properties' or 'qcorr liquid' into one CSV with a "
-    "JSON sidecar that keeps every input's provenance. Tables with other columns, a missing "
-    "sidecar, or rows repeating another table's (same system, group, method, property, "
-    "temperature, basis) are refused."
+    "JSON sidecar that keeps every input's provenance and a column schema (TABLE.schema.json). "
+    "Tables with other columns, a missing sidecar, contents that differ from what their "
+    "sidecar records (cut short or edited), or rows repeating another table's (same system, "
+    "group, method, property, temperature, basis) are refused. Optionally also writes a "
+    "summary for people (Markdown, HTML) with each value rounded to its standard error."
 )
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("tables", metavar="TABLE.csv", nargs="+", help="tables to merge")
     parser.add_argument("--output", required=True, metavar="ALL.csv",
-                        help="merged table to write (CSV); ALL.json is written beside it%(default).0s")
+                        help="merged table to write (CSV); ALL.json (provenance) and "
+                             "ALL.schema.json (columns, units) are written beside it")
+    parser.add_argument("--summary-markdown", metavar="FILE.md", default=None,
+                        help="also write the summary (values per mole of molecules, rounded "
+                             "to their standard errors, and the cautions) as Markdown")
+    parser.add_argument("--summary-html", metavar="FILE.html", default=None,
+                        help="also write that summary as a self-contained HTML page whose "
+                             "table sorts by a click on a column head")
 
 
 def run(args: argparse.Namespace) -> int:
     output = table.check_output_path(args.output, args.tables)
     for path in args.tables:  # refuse merging a table's own sidecar, too
         table.check_output_path(args.output, [table.sidecar_path(path)])
+    extra = {"--summary-markdown": args.summary_markdown, "--summary-html": args.summary_html}
+    for option, path in extra.items():
+        if path is not None:
+            table.check_output_path(path, [*args.tables, output], option)
     frame = table.merge_tables(args.tables)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs}
+    pages = {
+        args.summary_markdown: summary.summary_markdown,
+        args.summary_html: summary.summary_html,
+    }
+    texts = {path: render(frame) for path, render in pages.items() if path is not None}
     table.write_table(frame, output)
+    for path, text in texts.items():
+        write_text_atomic(path, text)
     print(f"merged {len(frame)} rows from {len(args.tables)} tables into {output} "
           f"and {table.sidecar_path(output)}")
     return 0

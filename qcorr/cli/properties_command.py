@@ -11,7 +11,7 @@ import math
 from pathlib import Path
 
 from qcorr.errors import ConfigError
-from qcorr.outputs import table
+from qcorr.outputs import summary, table
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo.harmonic import harmonic_properties
 from qcorr.thermo.spectrum_groups import DEFAULT_ZERO_FREQUENCY_THRESHOLD
@@ -128,6 +128,6 @@ def run(args: argparse.Namespace) -> int:
                    "input_spectrum": table.file_record(spectrum_path)}
     table.write_table(frame, output)
     if not args.quiet:
-        print(table.summary_text(frame, "Values per mole of molecules (all bases in the CSV)."))
+        print(summary.summary_text(frame, "Values per mole of molecules (all bases in the CSV)."))
         print(f"wrote {output} and {table.sidecar_path(output)}")
     return 0

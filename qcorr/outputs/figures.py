@@ -42,6 +42,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from scipy.integrate import cumulative_trapezoid
 
+from qcorr import units
 from qcorr.constants import reduced_frequency, wavenumber_per_THz
 from qcorr.errors import ConfigError, PhysicsError
 from qcorr.safe_write import atomic_path
@@ -400,7 +401,7 @@ def cumulative_figure(
         axes.axhline(0.0, color="grey", linewidth=0.6)
         axes.set_xlim(0, upper)
         axes.set_xlabel("upper wavenumber of the integral (cm⁻¹)")
-        axes.set_ylabel(f"cumulative correction ({running[names[0]].attrs['units']})")
+        axes.set_ylabel(f"cumulative correction ({units.pretty(running[names[0]].attrs['units'])})")
         axes.legend(fontsize="small")
         _add_frequency_axis(axes)
     per = {"per_mole_molecules": "per mole of molecules", "per_mole_atoms": "per mole of atoms",

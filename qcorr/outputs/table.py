@@ -7,11 +7,17 @@ is empty or how a value is to be read.  The layout is described in
 ``DEVELOPERS.md`` ("The property table").
 
 The CSV is plain text (``,``-separated, ``.`` decimal, empty cell = not
-defined); floats are written with full double precision.  The JSON sidecar
-``<table>.json`` holds the provenance: what was read (file name, size,
-SHA-256), the qcorr and library versions, the options, and the cautions that
-apply to every number in the table.  Both files are written atomically: either
-both appear complete, or neither is touched.
+defined); floats are written with full double precision, except that a value below
+:data:`ROUNDING_NOISE` times the largest value of its row (double-precision rounding of
+sums over many spectrum bins, e.g. a standard error that is zero in exact arithmetic)
+is written as 0.  The ``unit`` column holds UDUNITS-2 strings (:mod:`qcorr.units`).
+Beside it, the JSON sidecar ``<table>.json`` holds the provenance: what was read
+(file name, size, SHA-256), the qcorr and library versions, the options, the cautions
+that apply to every number in the table, and the CSV's own row count and SHA-256 (so
+that a table cut short or edited afterwards is refused when read); and
+``<table>.schema.json`` describes the columns, their types and units as a Frictionless
+Table Schema (https://specs.frictionlessdata.io/table-schema/).  The files are written
+atomically: either all appear complete, or none is touched.
 
 In memory a table is a :class:`pandas.DataFrame` with exactly :data:`TABLE_COLUMNS`
 and its provenance in ``DataFrame.attrs``: :func:`write_table` writes the attrs as the
@@ -23,7 +29,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
 import os
 from collections.abc import Iterable, Sequence
 from dataclasses import asdict, dataclass, fields
@@ -32,7 +37,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from qcorr import __version__
+from qcorr import __version__, units
 from qcorr.errors import ConfigError, QcorrError
 from qcorr.safe_write import atomic_path
 
@@ -51,7 +56,8 @@ COLUMNS: dict[str, str] = {
     "temperature_K": "temperature at which the property is evaluated, K",
     "basis": "per_mole_molecules, per_mole_atoms, per_system, or atom_mean (mass-weighted "
     "mean over the group's atoms)",
-    "unit": "J/(mol K) or kJ/mol per mole; J/K or kJ per system; angstrom^2; 1",
+    "unit": "unit of classical, quantum, correction and their standard errors (UDUNITS-2): "
+    "J mol-1 K-1 or kJ mol-1 per mole; J K-1 or kJ per system; angstrom2; 1",
     "classical": "classical value (see classical_source)",
     "quantum": "quantum value = classical + correction",
     "correction": "quantum correction (quantum - classical)",
@@ -71,6 +77,21 @@ TEXT_COLUMNS: tuple[str, ...] = (
 
 #: the value bases of a table
 BASES = ("per_mole_molecules", "per_mole_atoms", "per_system")
+#: every basis a row may have (the value bases, and the mass-weighted atom mean)
+ALL_BASES = (*BASES, "atom_mean")
+#: the methods of a table's rows
+METHODS = ("harmonic", "frozen_bond_addon", "2pt")
+#: the unit strings a table's ``unit`` column may hold (UDUNITS-2, :mod:`qcorr.units`)
+TABLE_UNITS = (units.MOLAR_HEAT_CAPACITY, units.MOLAR_ENERGY, units.SYSTEM_HEAT_CAPACITY,
+               units.SYSTEM_ENERGY, units.AREA, units.DIMENSIONLESS)
+#: the columns holding a value or its standard error (in the row's unit)
+VALUE_COLUMNS = ("classical", "quantum", "correction", "classical_se", "quantum_se",
+                 "correction_se")
+#: a value below this fraction of the largest value of its row is written as 0: sums
+#: over n ~ 10^3-10^4 spectrum bins carry a relative rounding error of about n x 2.2e-16
+#: (double precision; N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd
+#: ed. (2002), section 4.2), so nothing below 1e-12 of the row is resolved
+ROUNDING_NOISE = 1e-12
 
 @dataclass
 class TableRow:
@@ -97,15 +118,76 @@ def rows_to_frame(rows: Iterable[TableRow]) -> pd.DataFrame:
     """Tidy DataFrame with exactly :data:`TABLE_COLUMNS` (None becomes NaN)."""
     records = [asdict(r) for r in rows]
     frame = pd.DataFrame.from_records(records, columns=[f.name for f in fields(TableRow)])
-    for col in ("classical", "quantum", "correction", "classical_se", "quantum_se", "correction_se"):
+    for col in VALUE_COLUMNS:
         frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
     frame["temperature_K"] = frame["temperature_K"].astype(float)
-    return frame[list(TABLE_COLUMNS)]
+    return without_rounding_noise(frame[list(TABLE_COLUMNS)])
+
+
+def without_rounding_noise(frame: pd.DataFrame) -> pd.DataFrame:
+    """*frame* with every value or standard error below :data:`ROUNDING_NOISE` times the
+    largest of its row's classical, quantum and correction values set to 0 (a copy).
+
+    A standard error that is zero in exact arithmetic (e.g. a classical harmonic heat
+    capacity, exactly the degrees of freedom in every segment) comes out as ~1e-16 of
+    the value; it is written as 0, not as 2.3e-15.
+    """
+    out = frame.copy()
+    scale = out[["classical", "quantum", "correction"]].abs().max(axis=1, skipna=True)
+    limit = (ROUNDING_NOISE * scale).to_numpy()
+    for column in VALUE_COLUMNS:
+        values = out[column].to_numpy(dtype=float, copy=True)
+        noise = np.isfinite(values) & np.isfinite(limit) & (np.abs(values) < limit)
+        values[noise] = 0.0
+        out[column] = values
+    return out
 
 
 def sidecar_path(table_path: str | os.PathLike[str]) -> Path:
     """The JSON sidecar of a table: ``TABLE.csv`` -> ``TABLE.json``."""
     return Path(table_path).with_suffix(".json")
+
+
+def schema_path(table_path: str | os.PathLike[str]) -> Path:
+    """The column schema of a table: ``TABLE.csv`` -> ``TABLE.schema.json``."""
+    return Path(table_path).with_suffix(".schema.json")
+
+
+def table_schema() -> dict[str, object]:
+    """The table's columns as a Frictionless Table Schema (types, units, descriptions).
+
+    Fixed units are given as ``"unit"`` (UDUNITS-2); the value columns take the unit of
+    their row's ``unit`` column, listed as that field's ``constraints.enum``.
+    """
+    fields = []
+    for name, description in COLUMNS.items():
+        field: dict[str, object] = {"name": name, "description": description}
+        if name in TEXT_COLUMNS:
+            field["type"] = "string"
+        else:
+            field["type"] = "number"
+        if name == "temperature_K":
+            field["unit"] = units.TEMPERATURE
+            field["constraints"] = {"required": True, "minimum": 0}
+        elif name in VALUE_COLUMNS:
+            field["description"] = f"{description}; in the unit of the row's 'unit' column"
+        elif name == "unit":
+            field["constraints"] = {"required": True, "enum": list(TABLE_UNITS)}
+        elif name == "basis":
+            field["constraints"] = {"required": True, "enum": list(ALL_BASES)}
+        elif name == "method":
+            field["constraints"] = {"required": True, "enum": list(METHODS)}
+        elif name in ("system", "group", "property"):
+            field["constraints"] = {"required": True}
+        fields.append(field)
+    return {
+        "fields": fields,
+        "missingValues": [""],
+        "primaryKey": list(KEY_COLUMNS),
+        "description": "qcorr property table: one row per system, atom group, method, "
+        "property, temperature and basis; units in UDUNITS-2 syntax (CF conventions 1.11, "
+        "section 3.1)",
+    }
 
 
 def file_record(path: str | os.PathLike[str]) -> dict[str, object]:
@@ -148,7 +230,7 @@ def check_output_path(
             f"{option} '{output}': the table must not end in .json (that name is used for its "
             "sidecar); use a .csv name"
         )
-    targets = {output.resolve(), sidecar_path(output).resolve()}
+    targets = {output.resolve(), sidecar_path(output).resolve(), schema_path(output).resolve()}
     for item in inputs:
         if Path(item).resolve() in targets:
             raise ConfigError(
@@ -211,13 +293,24 @@ def write_table(
         "columns": COLUMNS,
         "versions": library_versions(),
     }
-    sidecar = {**header, **{k: v for k, v in provenance.items() if k not in header}}
+    provenance = {k: v for k, v in provenance.items() if k not in header and k not in _CSV_KEYS}
+    csv_text = without_rounding_noise(frame).to_csv(index=False, na_rep="", lineterminator="\n")
+    csv_bytes = csv_text.encode("utf-8")
+    sidecar = {**header, "csv_rows": len(frame),
+               "csv_sha256": hashlib.sha256(csv_bytes).hexdigest(), **provenance}
     text = json.dumps(sidecar, indent=2, sort_keys=False, default=_json_default, allow_nan=False)
+    schema = json.dumps(table_schema(), indent=2)
     path = Path(path)
-    with atomic_path(path) as tmp_csv, atomic_path(sidecar_path(path)) as tmp_json:
-        frame.to_csv(tmp_csv, index=False, na_rep="", lineterminator="\n")
+    with (atomic_path(path) as tmp_csv, atomic_path(sidecar_path(path)) as tmp_json,
+          atomic_path(schema_path(path)) as tmp_schema):
+        tmp_csv.write_bytes(csv_bytes)
         tmp_json.write_text(text + "\n", encoding="utf-8")
+        tmp_schema.write_text(schema + "\n", encoding="utf-8")
     return path
+
+
+#: sidecar keys that describe the CSV file itself (set by :func:`write_table`)
+_CSV_KEYS = ("csv_rows", "csv_sha256")
 
 
 def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
@@ -274,6 +367,14 @@ def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
             f"sidecar '{side}' of table '{path}' was not written by qcorr "
             f"(qcorr_file_kind is not {FILE_KIND!r})"
         )
+    if "csv_sha256" in provenance:
+        digest = hashlib.sha256(path.read_bytes()).hexdigest()
+        if digest != provenance["csv_sha256"] or len(frame) != provenance.get("csv_rows"):
+            raise ConfigError(
+                f"table '{path}' is not the table its sidecar describes ({len(frame)} rows "
+                f"read, {provenance.get('csv_rows')} written; SHA-256 differs): it was cut "
+                "short or edited after qcorr wrote it; make it again"
+            )
     for col in TEXT_COLUMNS:
         frame[col] = frame[col].fillna("").astype(str)
     frame.attrs = provenance
@@ -346,58 +447,3 @@ def merge_tables(tables: Sequence[str | os.PathLike[str] | pd.DataFrame]) -> pd.
                 cautions.append(c)
     merged.attrs = {"merged_from": sources, "cautions": cautions}
     return merged
-
-
-def _value_with_error(value: float, error: float) -> str:
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return ""
-    text = f"{value:.6g}"
-    if error is not None and not (isinstance(error, float) and math.isnan(error)):
-        text += f" ± {error:.2g}"
-    return text
-
-
-def _cell(value: float, error: float, note: str) -> str:
-    text = _value_with_error(value, error)
-    if not text and "refused" in note:
-        return "refused (see CSV note)"
-    return text
-
-
-def format_table(frame: pd.DataFrame, basis: str = "per_mole_molecules") -> str:
-    """Readable text table of one basis (values with their standard errors).
-
-    Rows of the chosen basis, plus rows whose basis is not one of
-    :data:`BASES` (e.g. the mean-square displacement, ``atom_mean``).
-    """
-    keep = frame[(frame["basis"] == basis) | ~frame["basis"].isin(BASES)]
-    shown = pd.DataFrame(
-        {
-            "system": keep["system"],
-            "group": keep["group"],
-            "method": keep["method"],
-            "T/K": keep["temperature_K"].map(lambda t: f"{t:g}"),
-            "property": keep["property"],
-            "unit": keep["unit"],
-            "classical": [
-                _cell(v, e, n) for v, e, n in zip(keep["classical"], keep["classical_se"], keep["note"])
-            ],
-            "quantum": [
-                _cell(v, e, n) for v, e, n in zip(keep["quantum"], keep["quantum_se"], keep["note"])
-            ],
-            "correction": [
-                _value_with_error(v, e) for v, e in zip(keep["correction"], keep["correction_se"])
-            ],
-        }
-    )
-    if shown.empty:
-        return "(no rows)"
-    return shown.to_string(index=False)
-
-
-def summary_text(frame: pd.DataFrame, heading: str, basis: str = "per_mole_molecules") -> str:
-    """What the property commands print: the table of one basis (:func:`format_table`),
-    then *heading* and the cautions of ``frame.attrs``, one per line."""
-    lines = [format_table(frame, basis), "", f"{heading} Cautions:"]
-    lines += [f"- {caution}" for caution in frame.attrs.get("cautions", [])]
-    return "\n".join(lines)

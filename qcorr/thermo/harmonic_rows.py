@@ -16,6 +16,7 @@ import math
 import numpy as np
 
 from qcorr import constants as C
+from qcorr import units
 from qcorr.outputs.table import BASES, TableRow
 from qcorr.thermo.segment_statistics import normalised_segments, segment_standard_error
 from qcorr.thermo.spectrum_groups import GroupSpectrum, ZeroFrequencyCheck
@@ -139,8 +140,8 @@ def msd_rows(
         note = (f"refused: diffusing group ({check.describe()}); the harmonic mean-square "
                 "displacement needs bound motion")
         return [
-            TableRow(property="mean_square_displacement", unit="angstrom^2", note=note, **base),
-            TableRow(property="mean_square_displacement_ratio", unit="1", note=note, **base),
+            TableRow(property="mean_square_displacement", unit=units.AREA, note=note, **base),
+            TableRow(property="mean_square_displacement_ratio", unit=units.DIMENSIONLESS, note=note, **base),
         ]
     x = group.wavenumber_cm
     q, c = mean_square_displacement(x, group.vdos, temperature_K, group.group_mass_g_mol)
@@ -155,14 +156,14 @@ def msd_rows(
         ratio_note += scan
     return [
         TableRow(
-            property="mean_square_displacement", unit="angstrom^2", classical=c, quantum=q,
+            property="mean_square_displacement", unit=units.AREA, classical=c, quantum=q,
             correction=q - c, classical_se=float(segment_standard_error(c_s, k_eff)),
             quantum_se=float(segment_standard_error(q_s, k_eff)),
             correction_se=float(segment_standard_error(q_s - c_s, k_eff)),
             classical_source="harmonic_model", note=note, **base,
         ),
         TableRow(
-            property="mean_square_displacement_ratio", unit="1", classical=1.0, quantum=q / c,
+            property="mean_square_displacement_ratio", unit=units.DIMENSIONLESS, classical=1.0, quantum=q / c,
             correction=q / c - 1.0, classical_se=0.0,
             quantum_se=float(segment_standard_error(q_s / c_s, k_eff)),
             correction_se=float(segment_standard_error(q_s / c_s, k_eff)),

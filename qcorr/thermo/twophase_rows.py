@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from qcorr import constants as C
+from qcorr import units
 from qcorr.outputs.table import TableRow
 from qcorr.thermo.segment_statistics import segment_standard_error
 from qcorr.thermo.twophase import GroupResult
@@ -72,7 +73,7 @@ def two_phase_rows(
         c = getattr(result, prop + "_classical") * R
         qs = np.array(per_seg(prop)) * R
         cs = np.array(per_seg(prop + "_classical")) * R
-        rows.append(TableRow(**base, property=prop, unit="J/(mol K)", classical=c, quantum=q,
+        rows.append(TableRow(**base, property=prop, unit=units.MOLAR_HEAT_CAPACITY, classical=c, quantum=q,
                              correction=q - c, classical_se=se(cs), quantum_se=se(qs),
                              correction_se=se(qs - cs), classical_source="harmonic_model",
                              note=note))
@@ -80,7 +81,7 @@ def two_phase_rows(
         q, c = cres.entropy * R, cres.entropy_classical * R
         qs = np.array(per_seg("entropy", comp)) * R
         cs = np.array(per_seg("entropy_classical", comp)) * R
-        rows.append(TableRow(**base, property=f"entropy_{comp}", unit="J/(mol K)", classical=c,
+        rows.append(TableRow(**base, property=f"entropy_{comp}", unit=units.MOLAR_HEAT_CAPACITY, classical=c,
                              quantum=q, correction=q - c, classical_se=se(cs), quantum_se=se(qs),
                              correction_se=se(qs - cs), classical_source="harmonic_model",
                              note=f"{comp} part of the 2PT entropy; f = {cres.fluidicity:.4g}"))
@@ -93,26 +94,26 @@ def two_phase_rows(
     da_s = de_s - temperature * (ds_q - ds_c) * 1e-3
     zpe = _kJ_per_mol(result.zero_point_energy, temperature)
     zpe_s = np.array([_kJ_per_mol(v, temperature) for v in per_seg("zero_point_energy")])
-    rows.append(TableRow(**base, property="zero_point_energy", unit="kJ/mol", classical=0.0,
+    rows.append(TableRow(**base, property="zero_point_energy", unit=units.MOLAR_ENERGY, classical=0.0,
                          quantum=zpe, correction=zpe, classical_se=0.0, quantum_se=se(zpe_s),
                          correction_se=se(zpe_s), classical_source="harmonic_model",
                          note="of the solid-like parts"))
     if md_energy is None:
         why = "absolute value needs --md-energy (mean MD energy per mole of molecules)"
-        rows.append(TableRow(**base, property="energy", unit="kJ/mol", correction=de,
+        rows.append(TableRow(**base, property="energy", unit=units.MOLAR_ENERGY, correction=de,
                              correction_se=se(de_s), note=why))
-        rows.append(TableRow(**base, property="helmholtz_free_energy", unit="kJ/mol",
+        rows.append(TableRow(**base, property="helmholtz_free_energy", unit=units.MOLAR_ENERGY,
                              correction=da, correction_se=se(da_s), note=why))
     else:
         e_c = md_energy
         a_c = e_c - temperature * s_c * 1e-3
         a_s = e_c - temperature * ds_c * 1e-3
-        rows.append(TableRow(**base, property="energy", unit="kJ/mol", classical=e_c,
+        rows.append(TableRow(**base, property="energy", unit=units.MOLAR_ENERGY, classical=e_c,
                              quantum=e_c + de, correction=de, classical_se=float("nan"),
                              quantum_se=se(de_s), correction_se=se(de_s),
                              classical_source="md_value",
                              note="E = E_MD + kT * integral S_solid (W_E^q - 1); E_MD error not included"))
-        rows.append(TableRow(**base, property="helmholtz_free_energy", unit="kJ/mol",
+        rows.append(TableRow(**base, property="helmholtz_free_energy", unit=units.MOLAR_ENERGY,
                              classical=a_c, quantum=a_c + da, correction=da,
                              classical_se=se(a_s), quantum_se=se(a_s + da_s),
                              correction_se=se(da_s), classical_source="md_value",

@@ -73,6 +73,7 @@ from fractions import Fraction
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from qcorr import units
 from qcorr.errors import ConfigError
 
 FloatArray = NDArray[np.float64]
@@ -389,12 +390,12 @@ class HarmonicProperty:
     @property
     def molar_unit(self) -> str:
         """Unit of the value per mole (of molecules or atoms)."""
-        return "kJ/mol" if self.times_kT else "J/(mol K)"
+        return units.MOLAR_ENERGY if self.times_kT else units.MOLAR_HEAT_CAPACITY
 
     @property
     def system_unit(self) -> str:
         """Unit of the value for the whole simulated system."""
-        return "kJ" if self.times_kT else "J/K"
+        return units.SYSTEM_ENERGY if self.times_kT else units.SYSTEM_HEAT_CAPACITY
 
 
 PROPERTIES: dict[str, HarmonicProperty] = {

@@ -441,6 +441,7 @@ def get_final_output():
     outputs = [
         "<results>/corrected_properties.csv",
         "<results>/corrected_properties.json",
+        "<results>/corrected_properties.html",
     ]
     for sid in SYSTEM_IDS:
         outputs += [

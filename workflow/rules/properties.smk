@@ -52,9 +52,17 @@ rule merge_tables:
             "<results>/corrected_properties.csv",
             caption="../report/merged_table.rst",
             category="1. Corrected properties",
-            labels={"table": "all systems"},
+            labels={"table": "all systems", "format": "CSV (full precision)"},
         ),
         sidecar="<results>/corrected_properties.json",
+        schema="<results>/corrected_properties.schema.json",
+        summary=report(
+            "<results>/corrected_properties.html",
+            caption="../report/summary_table.rst",
+            category="1. Corrected properties",
+            labels={"table": "all systems", "format": "table (rounded)"},
+        ),
+        summary_markdown="<results>/corrected_properties.md",
     log:
         "<logs>/merge_tables/merge.log",
     benchmark:
@@ -65,4 +73,6 @@ rule merge_tables:
         mem_mb=get_table_mem_mb,
         runtime=10,
     shell:
-        "qcorr merge {input:q} --output {output.table:q} > {log:q} 2>&1"
+        "qcorr merge {input:q} --output {output.table:q}"
+        " --summary-html {output.summary:q} --summary-markdown {output.summary_markdown:q}"
+        " > {log:q} 2>&1"
