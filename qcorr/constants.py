@@ -44,3 +44,10 @@ def THz_to_wavenumber(frequency_THz: ArrayLike) -> NDArray[np.float64]:
 def reduced_frequency(wavenumber_cm: ArrayLike, temperature_K: float) -> NDArray[np.float64]:
     """u = h nu / (k T) for wavenumbers in cm^-1 at temperature in K (dimensionless)."""
     return second_radiation_constant_cm_K * np.asarray(wavenumber_cm, dtype=float) / temperature_K
+
+#: thermochemical calorie in J (exact, 4.184 J; the kcal of LAMMPS "real" units)
+calorie_J: float = _sc.calorie
+#: electronvolt in J (exact in the 2019 SI)
+electron_volt_J: float = _sc.electron_volt
+#: 1 bar nm^3 of one system, expressed in kJ per mole of systems (p V in GROMACS/OpenMM units)
+bar_nm3_kJ_per_mol: float = _sc.bar * 1e-27 * _sc.N_A / 1000.0

@@ -42,11 +42,33 @@ def test_columns_follow_the_contract() -> None:
     assert table.TABLE_COLUMNS == (
         "system", "group", "method", "property", "temperature_K", "basis", "unit", "classical",
         "quantum", "correction", "classical_se", "quantum_se", "correction_se",
-        "classical_source", "note",
+        "classical_source", "note", "reference", "reference_se", "reference_source", "deviation",
+        "deviation_se",
     )
     frame = table.rows_to_frame(_rows())
     assert tuple(frame.columns) == table.TABLE_COLUMNS
     assert math.isnan(frame.loc[1, "quantum"])
+    assert "corrected" in table.METHODS
+
+
+def test_tables_written_before_the_reference_columns_still_read_and_merge(tmp_path) -> None:
+    """A table with the 15 columns of earlier versions (issue 13 appended five) is read with
+    empty reference columns and merges with a current table."""
+    path, frame = _write(tmp_path, "new", "sys_new")
+    old = tmp_path / "old.csv"
+    legacy = frame[list(table.LEGACY_TABLE_COLUMNS)].assign(system="sys_old")
+    old_text = legacy.to_csv(index=False, na_rep="", lineterminator="\n")
+    old.write_text(old_text)
+    table.sidecar_path(old).write_text(json.dumps({
+        "qcorr_file_kind": "property_table", "csv_rows": len(legacy),
+        "csv_sha256": hashlib.sha256(old_text.encode()).hexdigest()}))
+    back = table.read_table(old)
+    assert tuple(back.columns) == table.TABLE_COLUMNS
+    assert back["reference"].isna().all() and (back["reference_source"] == "").all()
+    merged = table.merge_tables([path, old])
+    assert list(merged["system"].unique()) == ["sys_new", "sys_old"]
+    in_memory = table.merge_tables([frame, legacy])
+    assert tuple(in_memory.columns) == table.TABLE_COLUMNS
 
 
 def test_write_read_round_trip_exact(tmp_path) -> None:

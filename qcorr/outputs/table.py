@@ -49,10 +49,13 @@ COLUMNS: dict[str, str] = {
     "system": "system identifier (--system; defaults to the spectrum file's stem)",
     "group": "atom group of the spectrum file",
     "method": "harmonic (Berens weighting functions), frozen_bond_addon (user-given "
-    "wavenumbers of constrained bonds), or 2pt (two-phase model)",
-    "property": "heat_capacity, energy (zero-point energy included), thermal_energy "
+    "wavenumbers of constrained bonds), 2pt (two-phase model), or corrected (a classical "
+    "value measured from the runs plus the harmonic quantum correction: the observable to "
+    "publish)",
+    "property": "heat_capacity (C_V), energy (zero-point energy included), thermal_energy "
     "(excluded), zero_point_energy, entropy, helmholtz_free_energy, "
-    "mean_square_displacement, mean_square_displacement_ratio",
+    "mean_square_displacement, mean_square_displacement_ratio; for method corrected also "
+    "isobaric_heat_capacity (C_P), enthalpy, gibbs_free_energy, vaporisation_enthalpy",
     "temperature_K": "temperature at which the property is evaluated, K",
     "basis": "per_mole_molecules, per_mole_atoms, per_system, or atom_mean (mass-weighted "
     "mean over the group's atoms)",
@@ -66,13 +69,30 @@ COLUMNS: dict[str, str] = {
     "correction_se": "standard error of correction",
     "classical_source": "harmonic_model (classical harmonic oscillators on the spectrum), "
     "md_value (classical value supplied by the user from the MD run), "
-    "constrained_in_md (a constrained bond: no classical contribution), or empty",
+    "constrained_in_md (a constrained bond: no classical contribution), "
+    "kinetic_fluctuation (microcanonical heat capacity from the trajectory's kinetic-energy "
+    "fluctuations), energy_file (the engine's energy output: mean energy or enthalpy, "
+    "fluctuation heat capacity), temperature_series (slope of H(T) or E(T) over runs at "
+    "several temperatures), user_value (typed in by the user), or empty",
     "note": "why a cell is empty, or how to read the row",
+    "reference": "a reference value for quantum (experiment or a published value), supplied "
+    "by the user; empty if none",
+    "reference_se": "standard error of reference (empty if not given)",
+    "reference_source": "where reference comes from, as the user gave it",
+    "deviation": "quantum - reference",
+    "deviation_se": "standard error of deviation: quantum_se and reference_se combined",
 }
 TABLE_COLUMNS: tuple[str, ...] = tuple(COLUMNS)
+#: the reference-value columns, added after ``note`` in qcorr 0.1 (issue 13)
+REFERENCE_COLUMNS: tuple[str, ...] = ("reference", "reference_se", "reference_source", "deviation",
+                                      "deviation_se")
+#: the columns of tables written before the reference columns existed; such tables are still
+#: read (and merged), with the reference columns empty
+LEGACY_TABLE_COLUMNS: tuple[str, ...] = tuple(c for c in TABLE_COLUMNS if c not in REFERENCE_COLUMNS)
 #: the columns holding text; the others hold numbers (NaN = empty cell)
 TEXT_COLUMNS: tuple[str, ...] = (
     "system", "group", "method", "property", "basis", "unit", "classical_source", "note",
+    "reference_source",
 )
 
 #: the value bases of a table
@@ -80,7 +100,7 @@ BASES = ("per_mole_molecules", "per_mole_atoms", "per_system")
 #: every basis a row may have (the value bases, and the mass-weighted atom mean)
 ALL_BASES = (*BASES, "atom_mean")
 #: the methods of a table's rows
-METHODS = ("harmonic", "frozen_bond_addon", "2pt")
+METHODS = ("harmonic", "frozen_bond_addon", "2pt", "corrected")
 #: the unit strings a table's ``unit`` column may hold (UDUNITS-2, :mod:`qcorr.units`)
 TABLE_UNITS = (units.MOLAR_HEAT_CAPACITY, units.MOLAR_ENERGY, units.SYSTEM_HEAT_CAPACITY,
                units.SYSTEM_ENERGY, units.AREA, units.DIMENSIONLESS)
@@ -112,13 +132,18 @@ class TableRow:
     correction_se: float | None = None
     classical_source: str = ""
     note: str = ""
+    reference: float | None = None
+    reference_se: float | None = None
+    reference_source: str = ""
+    deviation: float | None = None
+    deviation_se: float | None = None
 
 
 def rows_to_frame(rows: Iterable[TableRow]) -> pd.DataFrame:
     """Tidy DataFrame with exactly :data:`TABLE_COLUMNS` (None becomes NaN)."""
     records = [asdict(r) for r in rows]
     frame = pd.DataFrame.from_records(records, columns=[f.name for f in fields(TableRow)])
-    for col in VALUE_COLUMNS:
+    for col in (*VALUE_COLUMNS, "reference", "reference_se", "deviation", "deviation_se"):
         frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
     frame["temperature_K"] = frame["temperature_K"].astype(float)
     return without_rounding_noise(frame[list(TABLE_COLUMNS)])
@@ -169,7 +194,7 @@ def table_schema() -> dict[str, object]:
         if name == "temperature_K":
             field["unit"] = units.TEMPERATURE
             field["constraints"] = {"required": True, "minimum": 0}
-        elif name in VALUE_COLUMNS:
+        elif name in VALUE_COLUMNS or (name in REFERENCE_COLUMNS and name not in TEXT_COLUMNS):
             field["description"] = f"{description}; in the unit of the row's 'unit' column"
         elif name == "unit":
             field["constraints"] = {"required": True, "enum": list(TABLE_UNITS)}
@@ -326,7 +351,8 @@ def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
     pandas.DataFrame
         Exactly :data:`TABLE_COLUMNS` (empty cells as NaN in the number columns, empty
         strings in the text columns; values in the units of the ``unit`` column); the
-        sidecar's contents in ``attrs``.
+        sidecar's contents in ``attrs``.  A table written before the reference columns
+        existed (:data:`LEGACY_TABLE_COLUMNS`) is read with them empty.
 
     Raises
     ------
@@ -344,7 +370,8 @@ def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
             f"table '{path}' is not a readable CSV ({type(err).__name__}); give a table "
             "written by 'qcorr properties' or 'qcorr liquid'"
         ) from err
-    if tuple(frame.columns) != TABLE_COLUMNS:
+    legacy = tuple(frame.columns) == LEGACY_TABLE_COLUMNS
+    if tuple(frame.columns) != TABLE_COLUMNS and not legacy:
         missing = [c for c in TABLE_COLUMNS if c not in frame.columns]
         extra = [c for c in frame.columns if c not in TABLE_COLUMNS]
         raise ConfigError(
@@ -375,10 +402,22 @@ def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
                 f"read, {provenance.get('csv_rows')} written; SHA-256 differs): it was cut "
                 "short or edited after qcorr wrote it; make it again"
             )
+    if legacy:
+        frame = with_reference_columns(frame)
     for col in TEXT_COLUMNS:
         frame[col] = frame[col].fillna("").astype(str)
     frame.attrs = provenance
     return frame
+
+
+def with_reference_columns(frame: pd.DataFrame) -> pd.DataFrame:
+    """A table of :data:`LEGACY_TABLE_COLUMNS` (written before the reference columns existed)
+    with empty reference columns added, so that it merges with current tables (a copy)."""
+    out = frame.copy()
+    for col in REFERENCE_COLUMNS:
+        out[col] = "" if col in TEXT_COLUMNS else np.nan
+    out.attrs = dict(frame.attrs)
+    return out[list(TABLE_COLUMNS)]
 
 
 #: the columns that identify a row; no two rows of a merged table may share them
@@ -418,6 +457,8 @@ def merge_tables(tables: Sequence[str | os.PathLike[str] | pd.DataFrame]) -> pd.
         if isinstance(item, pd.DataFrame):
             label = f"table {number} (in memory)"
             where = label
+            if tuple(item.columns) == LEGACY_TABLE_COLUMNS:
+                item = with_reference_columns(item)
             if tuple(item.columns) != TABLE_COLUMNS:
                 raise ConfigError(
                     f"{label} has columns that do not match a qcorr property table; give tables "
