@@ -35,6 +35,9 @@ COMMAND_MODULES = (
     "combine",
     "properties",
     "liquid",
+    "corrected",
+    "series",
+    "vaporisation",
     "merge",
     "plot",
 )

@@ -76,10 +76,20 @@ def _cell(value: float, error: float, note: str) -> str:
     return text
 
 
+#: rows of these methods come first in a summary: they are the answer (issue 13)
+ANSWER_METHODS = ("corrected",)
+
+
 def summary_frame(frame: pd.DataFrame, basis: str = SUMMARY_BASIS) -> pd.DataFrame:
-    """The rows of one basis (and the rows without a value basis), as rounded text."""
+    """The rows of one basis (and the rows without a value basis), as rounded text.
+
+    Rows of :data:`ANSWER_METHODS` (corrected observables) come first, in their table order;
+    the columns ``reference`` and ``deviation`` are shown when a row has a reference value.
+    """
     keep = frame[(frame["basis"] == basis) | ~frame["basis"].isin(BASES)]
-    return pd.DataFrame(
+    first = keep["method"].isin(ANSWER_METHODS)
+    keep = pd.concat([keep[first], keep[~first]])
+    shown = pd.DataFrame(
         {
             "system": keep["system"],
             "group": keep["group"],
@@ -96,6 +106,14 @@ def summary_frame(frame: pd.DataFrame, basis: str = SUMMARY_BASIS) -> pd.DataFra
             "note": keep["note"].fillna(""),
         }
     ).reset_index(drop=True)
+    if "reference" in keep.columns and keep["reference"].notna().any():
+        position = list(shown.columns).index("correction") + 1
+        shown.insert(position, "reference", [
+            round_to_error(v, e) + (f" ({src})" if src else "")
+            for v, e, src in zip(keep["reference"], keep["reference_se"], keep["reference_source"])])
+        shown.insert(position + 1, "deviation", [
+            round_to_error(v, e) for v, e in zip(keep["deviation"], keep["deviation_se"])])
+    return shown
 
 
 def format_table(frame: pd.DataFrame, basis: str = SUMMARY_BASIS) -> str:
@@ -189,7 +207,7 @@ def summary_html(frame: pd.DataFrame, title: str = "Corrected properties",
                  basis: str = SUMMARY_BASIS) -> str:
     """A self-contained HTML page: the rounded table (sortable by column) and the cautions."""
     shown = summary_frame(frame, basis)
-    numeric = {"T/K", "classical", "quantum", "correction"}
+    numeric = {"T/K", "classical", "quantum", "correction", "deviation"}
     esc = html.escape
     head = "".join(f"<th>{esc(c)}</th>" for c in shown.columns)
     body = []
