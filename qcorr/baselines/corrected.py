@@ -339,7 +339,10 @@ def corrected_properties(
         Property table of method ``corrected`` (basis ``per_mole_molecules``); ``attrs``
         holds the provenance: ``method``, ``input_spectrum``, ``energy_file`` (path,
         format, columns used), ``options``, ``baselines`` (diagnostics), ``missing`` (the
-        properties without a baseline and what they need) and ``cautions``.
+        properties without a baseline and what they need), ``temperature_K``,
+        ``molecule_count``, ``harmonic_corrections`` (the group's ΔC_V, ΔE, ΔA per mole of
+        molecules with standard errors: what :mod:`qcorr.baselines.temperature_series` and
+        :mod:`qcorr.baselines.vaporisation` combine) and ``cautions``.
 
     Raises
     ------
@@ -387,6 +390,12 @@ def corrected_properties(
                     "references": {p: vars(r) for p, r in (references or {}).items()}},
         "baselines": baselines.diagnostics,
         "missing": missing,
+        "temperature_K": temperature,
+        "molecule_count": molecules,
+        "molecule_mass_g_mol": float(ds["group_mass"].sel(group=group).item()) / molecules,
+        "harmonic_corrections": {p: {"value": v, "standard_error": se, "unit": "J mol-1 K-1"
+                                     if p == "heat_capacity" else "kJ mol-1"}
+                                 for p, (v, se) in corrections.items()},
     })
     for caution in list(dict.fromkeys(cautions)):
         warnings.warn(caution, QcorrWarning, stacklevel=2)
