@@ -442,7 +442,46 @@ BAD_SHEETS = {
                        "unknown column"),
     "unknown 2PT choice": ([copper_row(hard_sphere_entropy="guess")], "row 1",
                            "'hard_sphere_entropy'", "guess"),
+    "energy file without format": ([copper_row(ensemble="nvt", energy_file="resources/demo/README.md")],
+                                   "row 1", "'energy_format'", "give the format"),
+    "series of one run": ([copper_row(ensemble="nvt", series="alone")], "row 1", "'series'",
+                          "has one run"),
+    "unknown gas system": ([copper_row(ensemble="npt", gas_system="vapour")], "row 1",
+                           "'gas_system'", "not the id of another system"),
 }
+
+
+def test_baseline_columns_reach_the_commands(demo_copy, tmp_path):
+    """Issue 13: the sheet's ensemble, energy-file, series, pair and reference columns become
+    'qcorr corrected', 'qcorr series' and 'qcorr vaporisation' jobs with those options (dry run;
+    the files' contents are not read before the jobs run)."""
+    energy = "resources/demo/README.md"  # stands in for an energy file: only its existence is checked
+    rows = [copper_row(system="cu_a", ensemble="npt", energy_file=energy, energy_format="lammps-log",
+                       lammps_units="metal", pressure_bar="1", series="cu_series", gas_system="cu_gas",
+                       reference_values="isobaric_heat_capacity=24.44:CRC Handbook",
+                       vaporisation_reference="337.4,1.2:made-up source"),
+            copper_row(system="cu_b", temperature_K="310", ensemble="npt", energy_file=energy,
+                       energy_format="gromacs-edr", series="cu_series", classical_values="energy=-330"),
+            copper_row(system="cu_gas", ensemble="nvt", energy_file=energy, energy_format="ase")]
+    name = sheet_with(demo_copy, rows, "baselines.tsv")
+    try:
+        dry = snakemake(["-n", "-p", "--forceall", "--cores", "1", "--config", f"systems={name}"],
+                        demo_copy, timeout=300)
+    finally:
+        (demo_copy / name).unlink()
+    assert dry.returncode == 0, explain(dry)
+    lines = (dry.stdout + dry.stderr).splitlines()
+    corrected = {line.split("--system ")[1].split()[0]: line for line in lines if "qcorr corrected " in line}
+    assert set(corrected) == {"cu_a", "cu_b", "cu_gas"}, explain(dry)
+    for text in ("--ensemble npt", f"--energy-file {energy}", "--energy-format lammps-log",
+                 "--lammps-units metal", "--pressure 1",
+                 "--reference 'isobaric_heat_capacity=24.44:CRC Handbook'"):
+        assert text in corrected["cu_a"], text
+    assert "--classical-value energy=-330" in corrected["cu_b"] and "--lammps-units" not in corrected["cu_b"]
+    series = [line for line in lines if "qcorr series " in line]
+    assert len(series) == 1 and "cu_a_corrected.csv" in series[0] and "cu_b_corrected.csv" in series[0]
+    pair = [line for line in lines if "qcorr vaporisation " in line]
+    assert len(pair) == 1 and "--name cu_a+cu_gas" in pair[0] and "--reference '337.4,1.2:made-up source'" in pair[0]
 
 
 def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):

@@ -96,6 +96,11 @@ class Reference:
     standard_error: float
     source: str
 
+    def as_json(self) -> dict[str, object]:
+        """The reference for a JSON sidecar (no standard error: null)."""
+        se = self.standard_error if math.isfinite(self.standard_error) else None
+        return {"value": self.value, "standard_error": se, "source": self.source}
+
 
 @dataclass(frozen=True)
 class TwoPhaseEntropy:
@@ -387,7 +392,7 @@ def corrected_properties(
         "options": {"system": system, "group": group, "ensemble": ensemble, "pressure_bar": pressure_bar,
                     "classical_values": dict(classical_values or {}),
                     "two_phase_table": None if two_phase_table is None else os.fspath(two_phase_table),
-                    "references": {p: vars(r) for p, r in (references or {}).items()}},
+                    "references": {p: r.as_json() for p, r in (references or {}).items()}},
         "baselines": baselines.diagnostics,
         "missing": missing,
         "temperature_K": temperature,

@@ -270,8 +270,8 @@ def series_figure(frame: pd.DataFrame, experiment: Sequence[tuple[float, float, 
     refs += [tuple(map(float, e)) for e in experiment]
     if refs:
         rt, rv, re = (np.array(v, dtype=float) for v in zip(*refs))
-        sources = sorted({s for s in frame["reference_source"] if s})
-        label = "; ".join(sources + ([experiment_label] if len(experiment) else [])) or experiment_label
+        sources = {s for s in frame["reference_source"] if s} | ({experiment_label} if len(experiment) else set())
+        label = "; ".join(sorted(sources)) or experiment_label
         axes.errorbar(rt, rv, yerr=np.nan_to_num(re), fmt="D", color="tab:blue", capsize=3, label=label)
     axes.set_xlabel("temperature / K")
     axes.set_ylabel(f"{symbol} / ({units.pretty(units.MOLAR_HEAT_CAPACITY)}) per mole of molecules")

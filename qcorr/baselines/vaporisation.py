@@ -142,7 +142,7 @@ def vaporisation_enthalpy(
         "parts_kJ_per_mol": {"H_liquid": [h_l, se_l, how_l], "H_gas": [h_g, se_g, how_g],
                              "Delta_E_liquid": [float(e_l["value"]), float(e_l["standard_error"])],
                              "Delta_E_gas": [float(e_g["value"]), float(e_g["standard_error"])]},
-        "options": {"name": name, "reference": None if reference is None else vars(reference)},
+        "options": {"name": name, "reference": None if reference is None else reference.as_json()},
         "cautions": list(VAPORISATION_ASSUMPTIONS),
     }
     return frame

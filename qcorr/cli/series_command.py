@@ -7,6 +7,7 @@ the table, :func:`~qcorr.baselines.temperature_series.series_figure` the figure.
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 
 from qcorr.cli.baseline_options import NO_AUTO_DEFAULT, parse_value_and_error
@@ -73,7 +74,8 @@ def run(args: argparse.Namespace) -> int:
     figure = series_figure(frame, experiment, args.experiment_source or "") if args.figure else None
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
                    "members": [{**m, **table.file_record(m["table"])} for m in frame.attrs["members"]],
-                   "experiment": {"points": experiment, "source": args.experiment_source}}
+                   "experiment": {"points": [[t, v, None if math.isnan(e) else e] for t, v, e in experiment],
+                                  "source": args.experiment_source}}
     table.write_table(frame, output)
     if figure is not None:
         figures.save_figure(figure, args.figure, option="--figure")

@@ -208,6 +208,7 @@ def check_cells(row, where):
             )
         for number in numbers.split(","):
             parse_positive_number(number.strip(), "frozen_bond_wavenumbers", where)
+    check_baseline_cells(row, where)
     if "stop" in row and pd.notna(row.get("stop")) and row["stop"] <= row["start"]:
         raise sheet_error(
             where,
@@ -226,6 +227,10 @@ def check_files(row, where):
     for path in trajectories:
         if not Path(path).is_file():
             raise sheet_error(where, "trajectory", f"file {path!r} does not exist")
+    if row["energy_file"] and not Path(row["energy_file"]).is_file():
+        raise sheet_error(
+            where, "energy_file", f"file {row['energy_file']!r} does not exist"
+        )
 
 
 def check_selections(row, where):
@@ -309,10 +314,15 @@ def load_systems(path):
         raise sheet_error(
             where, "system", f"the id {duplicated[0]!r} is used by more than one row"
         )
+    check_pairs_and_series(systems)
     if config["spectrum"]["check_selections"] and workflow.is_main_process:
         for _, row in systems.iterrows():
             check_selections(row, row["_where"])
     return systems
+
+
+# the classical-baseline columns (issue 13): their checks and input functions
+include: "baseline_sheet.smk"
 
 
 systems = load_systems(config["systems"])
@@ -320,6 +330,9 @@ SYSTEM_IDS = list(systems.index)
 BLOCKED_IDS = [sid for sid in SYSTEM_IDS if int(systems.loc[sid, "blocks"]) > 1]
 SINGLE_IDS = [sid for sid in SYSTEM_IDS if int(systems.loc[sid, "blocks"]) == 1]
 LIQUID_IDS = [sid for sid in SYSTEM_IDS if bool(systems.loc[sid, "liquid"])]
+CORRECTED_IDS = [sid for sid in SYSTEM_IDS if systems.loc[sid, "ensemble"]]
+SERIES_NAMES = sorted({name for name in systems["series"] if name})
+PAIR_IDS = [sid for sid in SYSTEM_IDS if systems.loc[sid, "gas_system"]]
 FIGURE_FORMAT = config["plots"]["format"]
 NO_MATCH = "(?!x)x"  # a regular expression that matches nothing
 
@@ -433,6 +446,9 @@ def get_tables(wildcards):
     """Every per-system table that goes into the merged table."""
     tables = [f"<results>/tables/{sid}_harmonic.csv" for sid in SYSTEM_IDS]
     tables += [f"<results>/tables/{sid}_2pt.csv" for sid in LIQUID_IDS]
+    tables += [f"<results>/tables/{sid}_corrected.csv" for sid in CORRECTED_IDS]
+    tables += [f"<results>/series/{name}.csv" for name in SERIES_NAMES]
+    tables += [f"<results>/vaporisation/{sid}.csv" for sid in PAIR_IDS]
     return tables
 
 
@@ -448,6 +464,7 @@ def get_final_output():
             f"<results>/plots/{sid}_spectrum.{figure}",
             f"<results>/plots/{sid}_cumulative.{figure}",
         ]
+    outputs += [f"<results>/plots/series_{name}.{figure}" for name in SERIES_NAMES]
     return outputs
 
 
