@@ -1,6 +1,6 @@
 """Corrected observables of one system: a classical baseline plus the harmonic quantum correction.
 
-Every row (method ``corrected``, basis ``per_mole_molecules``, at the spectrum's temperature)
+Every row (method ``corrected``, per mole of molecules and per mole of atoms, at the spectrum's temperature)
 is  quantum = classical + correction,  with the classical baseline measured from the runs
 (:mod:`qcorr.baselines.classical`, its source in ``classical_source``) and the correction the
 harmonic one of the group's spectrum at the same temperature (Berens, Mackay, White, Wilson
@@ -197,8 +197,10 @@ def corrected_rows(
     temperature_K: float,
     two_phase: TwoPhaseEntropy | None = None,
     references: Mapping[str, Reference] | None = None,
+    atoms_per_molecule: float | None = None,
 ) -> list[TableRow]:
-    """The corrected rows of one group: a row for every property with a baseline.
+    """The corrected rows of one group: a row for every property with a baseline, per mole of
+    molecules and (with *atoms_per_molecule*) per mole of atoms.
 
     Parameters
     ----------
@@ -214,7 +216,11 @@ def corrected_rows(
     two_phase : TwoPhaseEntropy, optional
         Classical 2PT entropy for the free energies of a liquid.
     references : mapping, optional
-        ``{property: Reference}``.
+        ``{property: Reference}`` (per mole of molecules; on that row only).
+    atoms_per_molecule : float, optional
+        Atoms per molecule of the group: adds a ``per_mole_atoms`` row after each row (a
+        group read without residues, e.g. from a LAMMPS dump, is one "molecule" of the
+        whole system; its per-atom rows are then the useful ones).
     """
     references = dict(references or {})
     free = _free_energy_baselines(baselines, two_phase, temperature_K)
@@ -231,7 +237,7 @@ def corrected_rows(
         quantum_se = math.hypot(base.standard_error if math.isfinite(base.standard_error) else 0.0, corr_se)
         extra = {"isobaric_heat_capacity": "; correction Delta C_V (pV and expansion terms classical)",
                  "gibbs_free_energy": "; correction Delta A (constant-volume, harmonic)"}.get(prop, "")
-        rows.append(TableRow(
+        row = TableRow(
             system=system, group=group, method="corrected", property=prop, temperature_K=temperature_K,
             basis="per_mole_molecules", unit=BASELINE_PROPERTIES[prop], classical=base.value,
             quantum=quantum, correction=corr,
@@ -239,11 +245,28 @@ def corrected_rows(
             quantum_se=quantum_se, correction_se=corr_se, classical_source=base.source,
             note=f"classical: {base.note}{extra}",
             **_reference_fields(quantum, quantum_se, references.pop(prop, None)),
-        ))
+        )
+        rows.append(row)
+        if atoms_per_molecule is not None:
+            rows.append(per_atom_row(row, atoms_per_molecule))
     if references:
         raise ConfigError(f"--reference {', '.join(references)}: no corrected row of group '{group}' for "
                           "it (no classical baseline); give the baseline or drop the reference")
     return rows
+
+
+def per_atom_row(row: TableRow, atoms_per_molecule: float) -> TableRow:
+    """The same row per mole of atoms (values divided by atoms per molecule; no reference)."""
+
+    def scaled(value):
+        return None if value is None else value / atoms_per_molecule
+
+    return TableRow(
+        system=row.system, group=row.group, method=row.method, property=row.property,
+        temperature_K=row.temperature_K, basis="per_mole_atoms", unit=row.unit,
+        classical=scaled(row.classical), quantum=scaled(row.quantum), correction=scaled(row.correction),
+        classical_se=scaled(row.classical_se), quantum_se=scaled(row.quantum_se),
+        correction_se=scaled(row.correction_se), classical_source=row.classical_source, note=row.note)
 
 
 def harmonic_corrections(ds: xr.Dataset, *, system: str, group: str, source: str
@@ -341,7 +364,8 @@ def corrected_properties(
     Returns
     -------
     pandas.DataFrame
-        Property table of method ``corrected`` (basis ``per_mole_molecules``); ``attrs``
+        Property table of method ``corrected`` (bases ``per_mole_molecules`` and
+        ``per_mole_atoms``); ``attrs``
         holds the provenance: ``method``, ``input_spectrum``, ``energy_file`` (path,
         format, columns used), ``options``, ``baselines`` (diagnostics), ``missing`` (the
         properties without a baseline and what they need), ``temperature_K``,
@@ -377,8 +401,9 @@ def corrected_properties(
     baselines = merged_baselines(*sets)
     entropy = (two_phase_entropy(two_phase_table, system=system, group=group, temperature_K=temperature)
                if two_phase_table is not None else None)
+    atoms = float(ds["atom_count"].sel(group=group).item())
     rows = corrected_rows(corrections, baselines, system=system, group=group, temperature_K=temperature,
-                          two_phase=entropy, references=references)
+                          two_phase=entropy, references=references, atoms_per_molecule=atoms / molecules)
     present = {r.property for r in rows}
     missing = {p: NEEDS[p] for p in ROW_ORDER if p not in present and _expected(p, ensemble)}
     cautions = baselines.cautions + cautions

@@ -61,7 +61,8 @@ class SeriesPoint:
 
 
 def _row(frame: pd.DataFrame, prop: str) -> pd.Series | None:
-    rows = frame[(frame["method"] == "corrected") & (frame["property"] == prop)]
+    rows = frame[(frame["method"] == "corrected") & (frame["property"] == prop)
+                 & (frame["basis"] == "per_mole_molecules")]
     return rows.iloc[0] if len(rows) else None
 
 

@@ -49,7 +49,8 @@ def _mean(frame: pd.DataFrame, label: str, phase: str) -> tuple[float, float, st
         raise ConfigError(f"--{phase} '{label}' is not a 'qcorr corrected' table; give the table it wrote")
 
     def row(prop):
-        rows = frame[(frame["method"] == "corrected") & (frame["property"] == prop)]
+        rows = frame[(frame["method"] == "corrected") & (frame["property"] == prop)
+                 & (frame["basis"] == "per_mole_molecules")]
         return rows.iloc[0] if len(rows) else None
 
     enthalpy, energy = row("enthalpy"), row("energy")
