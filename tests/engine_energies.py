@@ -182,3 +182,90 @@ def ase_copper(directory: Path, steps: int = 20) -> dict[str, np.ndarray]:
     dynamics.run(steps)
     trajectory.close()
     return {k: np.array(v) for k, v in seen.items()}
+
+
+def openmm_argon_nve(directory: Path, *, reduced_temperature: float = 1.0, atoms_per_side: int = 4,
+                     equilibration_ps: float = 40.0, production_ps: float = 500.0, timestep_fs: float = 10.0,
+                     steps_per_frame: int = 2, seed: int = 31) -> dict[str, float]:
+    """A microcanonical Lennard-Jones argon liquid (OpenMM, CPU platform, one thread).
+
+    fcc start at ρ* = 0.8442, 4·atoms_per_side³ atoms; LJ with OpenMM's switching function
+    from 2.7σ to 3σ, so that the energy is smooth and its gradient is the force (NVE conserves
+    K + U); Langevin equilibration (5/ps) at the target, then ``VerletIntegrator``.  Writes
+    ``topology.pdb`` and ``trajectory.trr`` (on-step velocities v(t) = v(t − dt/2) + (dt/2)F/m,
+    every *steps_per_frame* steps) and ``energies.csv`` (``StateDataReporter``, same steps).
+    Returns the degrees of freedom (3N − 3: the centre-of-mass motion is removed) and the run's
+    mean kinetic temperature (K).
+    """
+    import openmm as mm
+    import openmm.app as app
+    import openmm.unit as unit
+    from make_validation_data import TrajectoryRecorder
+
+    sigma_nm = SIGMA_A / 10.0
+    epsilon = C.boltzmann_J_per_K * EPSILON_K * C.avogadro_per_mol / 1000.0
+    lattice = (4 / (0.8442 / sigma_nm**3)) ** (1 / 3)
+    cell = np.array([[0, 0, 0], [0.5, 0.5, 0], [0.5, 0, 0.5], [0, 0.5, 0.5]])
+    grid = np.array([[i, j, k] for i in range(atoms_per_side) for j in range(atoms_per_side)
+                     for k in range(atoms_per_side)])
+    positions = ((grid[:, None, :] + cell[None]) * lattice).reshape(-1, 3)
+    n, box = len(positions), atoms_per_side * lattice
+    system = mm.System()
+    system.setDefaultPeriodicBoxVectors(*(np.eye(3) * box))
+    force = mm.NonbondedForce()
+    force.setNonbondedMethod(mm.NonbondedForce.CutoffPeriodic)
+    force.setCutoffDistance(3 * sigma_nm)
+    force.setUseSwitchingFunction(True)
+    force.setSwitchingDistance(2.7 * sigma_nm)
+    topology = app.Topology()
+    chain = topology.addChain()
+    for _ in range(n):
+        system.addParticle(ARGON_MASS_U)
+        force.addParticle(0.0, sigma_nm, epsilon)
+        topology.addAtom("Ar", app.element.argon, topology.addResidue("AR", chain))
+    system.addForce(force)
+    system.addForce(mm.CMMotionRemover())
+    topology.setPeriodicBoxVectors(np.eye(3) * box)
+    temperature = reduced_temperature * EPSILON_K
+    platform = mm.Platform.getPlatformByName("CPU")
+    properties = {"Threads": "1"}
+    bath = mm.LangevinMiddleIntegrator(temperature, 5.0, timestep_fs / 1000.0)
+    bath.setRandomNumberSeed(seed)
+    context = mm.Context(system, bath, platform, properties)
+    context.setPositions(positions)
+    context.setVelocitiesToTemperature(2 * temperature, seed)  # melt the lattice first
+    bath.step(round(0.25 * equilibration_ps * 1000 / timestep_fs))
+    bath.setTemperature(temperature)
+    bath.step(round(0.75 * equilibration_ps * 1000 / timestep_fs))
+    state = context.getState(getPositions=True, getVelocities=True)
+    del context
+    velocities = state.getVelocities(asNumpy=True).value_in_unit(unit.nanometer / unit.picosecond)
+    velocities -= velocities.mean(axis=0)  # equal masses: no centre-of-mass motion from the first frame on
+    dt = timestep_fs / 1000.0
+    simulation = app.Simulation(topology, system, mm.VerletIntegrator(dt), platform, properties)
+    simulation.context.setPositions(state.getPositions())
+    simulation.context.setVelocities(velocities)
+    masses = np.full(n, ARGON_MASS_U)
+    recorder = TrajectoryRecorder(directory, ["Ar"] * n, ["Ar"] * n, ["AR"] * n, np.arange(n))
+    recorder.write_topology(state.getPositions(asNumpy=True).value_in_unit(unit.angstrom), np.full(3, box * 10))
+    frames = round(production_ps * 1000 / timestep_fs) // steps_per_frame + 1
+    kinetic = []
+    with open(directory / "energies.csv", "w") as energy_file, recorder:
+        reporter = app.StateDataReporter(energy_file, steps_per_frame, time=True, potentialEnergy=True,
+                                         kineticEnergy=True, totalEnergy=True, temperature=True, volume=True)
+        for frame in range(frames):
+            if frame:
+                simulation.step(steps_per_frame)
+            state = simulation.context.getState(getPositions=True, getVelocities=True, getForces=True,
+                                                getEnergy=True)
+            reporter.report(simulation, state)
+            half = state.getVelocities(asNumpy=True).value_in_unit(unit.nanometer / unit.picosecond)
+            f = state.getForces(asNumpy=True).value_in_unit(unit.kilojoule_per_mole / unit.nanometer)
+            v = half + 0.5 * dt * f / masses[:, None]
+            kinetic.append(0.5 * float(np.sum(masses[:, None] * v * v)))
+            recorder.record(frame * steps_per_frame, frame * steps_per_frame * dt,
+                            state.getPositions(asNumpy=True).value_in_unit(unit.angstrom), v * 10.0,
+                            np.full(3, box * 10))
+    dof = 3 * n - 3
+    mean_t = 2 * float(np.mean(kinetic)) * 1000.0 / (dof * C.gas_constant_J_per_mol_K)
+    return {"degrees_of_freedom": dof, "mean_temperature_K": mean_t, "atoms": n, "box_nm": box}

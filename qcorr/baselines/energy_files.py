@@ -106,6 +106,17 @@ class EnergySeries:
         return int(self.total_energy_kJ_per_mol.size)
 
 
+def _library(module: str, package: str, where: str):
+    """Import the reader library of a format, or say which package to install."""
+    import importlib
+
+    try:
+        return importlib.import_module(module)
+    except ImportError:
+        raise ConfigError(f"{where}: reading it needs the Python package '{package}' "
+                          "(pip install 'qcorr[energy-files]')") from None
+
+
 def _where(path: str | os.PathLike[str], file_format: str) -> str:
     return f"energy file '{os.fspath(path)}' ({file_format})"
 
@@ -120,7 +131,7 @@ def _array(values, where: str, name: str) -> FloatArray:
 
 
 def _gromacs(path: Path, where: str) -> EnergySeries:
-    import pyedr
+    pyedr = _library("pyedr", "pyedr", where)
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # pyedr notes the enx file version on every read
@@ -183,7 +194,7 @@ def lammps_unit_style(text: str) -> str | None:
 
 
 def _lammps(path: Path, where: str, style: str | None) -> EnergySeries:
-    import lammps_logfile
+    lammps_logfile = _library("lammps_logfile", "lammps-logfile", where)
 
     text = path.read_text(encoding="utf-8", errors="replace")
     echoed = lammps_unit_style(text)
@@ -287,10 +298,10 @@ def _openmm(path: Path, where: str) -> EnergySeries:
 
 
 def _ase(path: Path, where: str) -> EnergySeries:
-    import ase.io
+    ase_io = _library("ase.io", "ase", where)
 
     try:
-        frames = ase.io.read(os.fspath(path), index=":")
+        frames = ase_io.read(os.fspath(path), index=":")
     except Exception as err:  # ase raises many types for unreadable files
         raise ConfigError(f"{where} is not readable by ase.io.read ({type(err).__name__}); "
                           "check --energy-format") from None
