@@ -72,6 +72,7 @@ DEMO_SYSTEMS: dict[str, engines.Spec] = {
         engines.WaterSpec(
             "water_flexible_298K", temperature_K=298.15, molecules_per_side=4, cutoff_nm=0.6,
             seed=2003, steps_per_frame=6, equilibration_ps=5.0, production_ps=3.0, segment_ps=1.0,
+            energy_file=True,
         ),
     )
 }

@@ -93,6 +93,7 @@ from qcorr.safe_write import atomic_path, write_text_atomic
 SETTINGS_NAME = "settings.json"
 TOPOLOGY_NAME = "topology.pdb"
 TRAJECTORY_NAME = "trajectory.trr"
+ENERGIES_NAME = "energies.csv"
 
 #: Version of the recipe below; bump when a change alters the trajectories.
 RECIPE_VERSION = 1
@@ -144,6 +145,10 @@ class WaterSpec:
     # Move the force field's tabulated Lennard-Jones term into the standard nonbonded force
     # (same potential, see fold_tabulated_lennard_jones); about 14x faster on the CPU platform.
     fold_tabulated_lennard_jones: bool = False
+    # Write OpenMM's StateDataReporter CSV of the production (energies.csv: time, potential,
+    # kinetic and total energy, temperature, volume at every frame) for classical baselines
+    # (issue 13); reporting does not change the dynamics.
+    energy_file: bool = False
 
 
 @dataclasses.dataclass(frozen=True)
@@ -198,8 +203,9 @@ def spec_settings(spec: Spec) -> dict[str, Any]:
     """The settings that define a trajectory (what the cache digest is made from)."""
     settings = dataclasses.asdict(spec)
     # recorded only when used, so settings written before the option existed stay current
-    if settings.get("fold_tabulated_lennard_jones") is False:
-        del settings["fold_tabulated_lennard_jones"]
+    for optional in ("fold_tabulated_lennard_jones", "energy_file"):
+        if settings.get(optional) is False:
+            del settings[optional]
     settings["temperature_K"] = spec.temperature_K
     settings["recipe_version"] = RECIPE_VERSION
     return settings
@@ -572,8 +578,25 @@ def _mdanalysis_mass(element: str) -> float:
 
 
 def _record_openmm_production(
-    simulation, recorder: TrajectoryRecorder, spec, masses_amu: np.ndarray, dof: int
+    simulation, recorder: TrajectoryRecorder, spec, masses_amu: np.ndarray, dof: int,
+    energies_path: Path | None = None,
 ) -> tuple[RunningObservables, float]:
+    import contextlib
+
+    import openmm.app as app
+
+    with contextlib.ExitStack() as stack:
+        reporter = None
+        if energies_path is not None:
+            handle = stack.enter_context(open(stack.enter_context(atomic_path(energies_path)), "w"))
+            reporter = app.StateDataReporter(handle, spec.steps_per_frame, time=True, potentialEnergy=True,
+                                             kineticEnergy=True, totalEnergy=True, temperature=True,
+                                             volume=True)
+        return _record_frames(simulation, recorder, spec, masses_amu, dof, reporter)
+
+
+def _record_frames(simulation, recorder, spec, masses_amu, dof, reporter):
+    """The production frames (and, with a reporter, its line for every frame)."""
     import openmm.unit as unit
 
     n = len(masses_amu)
@@ -594,6 +617,8 @@ def _record_openmm_production(
         forces_N = state.getForces(asNumpy=True).value_in_unit(unit.kilojoule_per_mole / unit.nanometer) * force_to_SI
         box = np.diag(state.getPeriodicBoxVectors(asNumpy=True).value_in_unit(unit.angstrom))
         kinetic_kJ_mol = state.getKineticEnergy().value_in_unit(unit.kilojoule_per_mole)
+        if reporter is not None:
+            reporter.report(simulation, state)
         observed.add(
             kinetic_temperature_K=2 * kinetic_kJ_mol * 1000.0 / (dof * boltzmann_J_per_K * avogadro_per_mol),
             potential_energy_kJ_per_mol_atoms=state.getPotentialEnergy().value_in_unit(unit.kilojoule_per_mole) / n,
@@ -696,7 +721,9 @@ def run_water(spec: WaterSpec, directory: Path, threads: int = 1) -> dict[str, A
     )
     recorder.write_topology(state.getPositions(asNumpy=True).value_in_unit(unit.angstrom), np.full(3, box_nm * 10))
     with recorder:
-        observed, msd = _record_openmm_production(simulation, recorder, spec, masses, dof)
+        observed, msd = _record_openmm_production(
+            simulation, recorder, spec, masses, dof, directory / ENERGIES_NAME if spec.energy_file else None
+        )
     return {
         "engine": {"name": "OpenMM", "version": mm.__version__, "platform": "CPU", "threads": threads,
                    "deterministic_forces": True},
@@ -865,7 +892,7 @@ def is_current(spec: Spec, directory: Path) -> bool:
         return False
     if recorded.get("settings_digest") != settings_digest(spec):
         return False
-    for key in ("topology", "trajectory"):
+    for key in ("topology", "trajectory") + (("energies",) if getattr(spec, "energy_file", False) else ()):
         entry = recorded.get("files", {}).get(key, {})
         path = directory / entry.get("name", "")
         if not path.is_file() or file_record(path)["sha256"] != entry.get("sha256"):
@@ -911,6 +938,8 @@ def make_system(spec: Spec, directory: Path, threads: int = 1) -> dict[str, Any]
         "files": {
             "topology": file_record(directory / TOPOLOGY_NAME),
             "trajectory": file_record(directory / TRAJECTORY_NAME),
+            **({"energies": file_record(directory / ENERGIES_NAME)}
+               if getattr(spec, "energy_file", False) else {}),
         },
         "software": {
             "python": platform.python_version(),
@@ -923,8 +952,9 @@ def make_system(spec: Spec, directory: Path, threads: int = 1) -> dict[str, Any]
         "cpu_time_s": round(cpu, 1),
     }
     write_text_atomic(directory / SETTINGS_NAME, json.dumps(settings, indent=2) + "\n")
-    for name in (TOPOLOGY_NAME, TRAJECTORY_NAME, SETTINGS_NAME):
-        _make_readable(directory / name)
+    for name in (TOPOLOGY_NAME, TRAJECTORY_NAME, SETTINGS_NAME, ENERGIES_NAME):
+        if (directory / name).is_file():
+            _make_readable(directory / name)
     return settings
 
 

@@ -230,6 +230,29 @@ def test_ensemble_checks_refuse_contradicting_data():
         classical.check_ensemble("npH")
 
 
+def test_canonical_sampling_is_checked_from_the_kinetic_energy():
+    """K ~ Gamma(f/2, RT) in any canonical run (x = f var K/(2 <K>^2) = 1): the fluctuation C_V is
+    given; an NVE-like kinetic energy (Beta share of a fixed total, x = f/(2(f+1)) ≈ 1/2) declared
+    NVT gives none, and the mean energy's standard error becomes RT·sqrt(f) (one canonical sample
+    of f harmonic modes), per mole of molecules."""
+    rng = np.random.default_rng(17)
+    n, f, T = 20000, 300, 300.0
+    rt = R * T / 1000.0
+    kinetic = rng.gamma(f / 2, rt, size=n)
+    total = kinetic + rng.gamma(f / 2, rt, size=n) - 1000.0
+    temperature = 2 * kinetic / (f * rt) * T
+    good = classical.energy_file_baselines(_series(total, kinetic, temperature), ensemble="nvt", temperature_K=T,
+                                           molecule_count=10, degrees_of_freedom=f)
+    assert good.baselines["heat_capacity"].value == pytest.approx(f * R / 10, rel=0.05)  # f/2 + f/2 modes
+    assert abs(good.diagnostics["kinetic_variance_ratio"][0] - 1) < 0.05
+    share = rng.beta(f / 2, f / 2, size=n) * f * rt
+    weak = classical.energy_file_baselines(_series(share - 1000.0, share, 2 * share / (f * rt) * T), ensemble="nvt",
+                                           temperature_K=T, molecule_count=10, degrees_of_freedom=f)
+    assert "heat_capacity" not in weak.baselines
+    assert weak.baselines["energy"].standard_error == pytest.approx(rt * math.sqrt(f) / 10)
+    assert any("did not sample canonical fluctuations" in c for c in weak.cautions)
+
+
 def test_npt_enthalpy_uses_the_reference_pressure():
     """H = E + pV with 1 bar nm³ = 1e5 Pa · 1e-27 m³ · N_A (scipy); C_P from its fluctuations."""
     rng = np.random.default_rng(16)

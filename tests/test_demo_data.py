@@ -85,8 +85,10 @@ def frames(tmp_path_factory):
 def test_demo_files_exist_and_stay_small():
     total = 0
     for name in SYSTEMS:
-        for file_name in ("topology.pdb", "trajectory.trr", "settings.json"):
+        for file_name in ("topology.pdb", "trajectory.trr", "settings.json", "energies.csv"):
             path = DEMO / name / file_name
+            if file_name == "energies.csv" and not getattr(demo_script.DEMO_SYSTEMS[name], "energy_file", False):
+                continue
             assert path.is_file(), f"{path} missing: run scripts/make_demo_data.py"
             total += path.stat().st_size
     assert (DEMO / "README.md").is_file()
@@ -97,7 +99,7 @@ def test_demo_files_exist_and_stay_small():
 @pytest.mark.parametrize("name", SYSTEMS)
 def test_settings_describe_the_committed_files(name):
     settings = _settings(name)
-    for key in ("topology", "trajectory"):
+    for key in ("topology", "trajectory") + (("energies",) if "energies" in settings["files"] else ()):
         record = settings["files"][key]
         path = DEMO / name / record["name"]
         assert demo_script.engines.file_record(path) == record, f"{path} differs from settings.json"

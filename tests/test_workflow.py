@@ -283,6 +283,19 @@ def direct_tables(copy: Path, out: Path) -> pd.DataFrame:
                 argv += ["--symmetry-number", row["symmetry_number"]]
             assert qcorr_main(argv) == 0
             tables.append(table)
+        if row.get("ensemble", ""):  # issue 13: corrected observables from the run's energy file
+            corrected = out / f"{sid}_corrected.csv"
+            argv = ["corrected", str(spectrum), "--system", sid, "--ensemble", row["ensemble"],
+                    "--output", str(corrected), "--quiet"]
+            if row.get("energy_file", ""):
+                argv += ["--energy-file", str(copy / row["energy_file"]), "--energy-format", row["energy_format"]]
+            if liquid:
+                argv += ["--two-phase-table", str(table)]
+            for item in row.get("reference_values", "").split(";"):
+                if item.strip():
+                    argv += ["--reference", item.strip()]
+            assert qcorr_main(argv) == 0
+            tables.append(corrected)
     merged = out / "merged.csv"
     assert qcorr_main(["merge", *map(str, tables), "--output", str(merged)]) == 0
     return pd.read_csv(merged)

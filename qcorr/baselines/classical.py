@@ -25,6 +25,13 @@ mean temperature must match the declared one, the temperature (and for NPT the v
 not drift between the two halves of the run, and an NVE run's total energy must be
 conserved (its variance below :data:`NVE_TOTAL_ENERGY_VARIANCE_LIMIT` of the kinetic
 energy's; in a canonical run it is larger than the kinetic energy's, C_V/(f k/2) times).
+An NVT or NPT run must have sampled canonical fluctuations: its kinetic energy's variance
+ratio x = f⟨δK²⟩/(2⟨K⟩²) is 1 in any canonical ensemble (K of f quadratic degrees of freedom is
+Gamma(f/2, kT) whatever the potential).  A run that misses it by more than
+:data:`CANONICAL_KINETIC_TOLERANCE` + 3 standard errors (a weak thermostat over a few of its
+periods, or a non-canonical one) gives no fluctuation heat capacity, and the standard error of
+its mean energy is raised to kT·sqrt(f), the canonical spread of one sample for f harmonic
+modes: its own scatter does not measure how far its mean is from the canonical one.
 """
 
 from __future__ import annotations
@@ -42,6 +49,7 @@ from qcorr.baselines.fluctuations import (
     blocked_standard_error,
     canonical_heat_capacity,
     half_drift,
+    kinetic_variance_ratio,
     microcanonical_heat_capacity,
 )
 from qcorr.errors import ConfigError, PhysicsError
@@ -66,6 +74,10 @@ TEMPERATURE_TOLERANCE = 0.02
 #: in an NVE run var(E_total) must stay below this fraction of var(K) (our choice; canonical runs
 #: have var(E)/var(K) = C_V/(f k/2) >= 1, and integration noise in NVE is orders of magnitude less)
 NVE_TOTAL_ENERGY_VARIANCE_LIMIT = 0.1
+#: a canonical run's kinetic-variance ratio x may differ from 1 by this plus three standard errors
+#: (our choice); beyond, the run did not sample canonical fluctuations (a thermostat too weak for
+#: the run's length, or one that is not canonical, such as Berendsen's)
+CANONICAL_KINETIC_TOLERANCE = 0.05
 
 
 @dataclass(frozen=True)
@@ -199,12 +211,21 @@ def energy_file_baselines(
     out.baselines["energy"] = Baseline("energy", value, se, source,
                                        "mean total (kinetic + potential) energy of the run")
     unconverged = [] if e.converged else ["energy"]
+    canonical = True
+    if ensemble in ("nvt", "npt"):
+        canonical = _canonical_sampling(series, degrees_of_freedom, molecule_count, temperature_K, out)
+        if not canonical:
+            old = out.baselines["energy"]
+            spread = _canonical_spread(degrees_of_freedom, temperature_K, molecule_count)
+            out.baselines["energy"] = Baseline("energy", old.value, max(old.standard_error, spread), source,
+                                               f"{old.note}; {_SPREAD_NOTE}")
     if ensemble == "nvt":
-        cv = canonical_heat_capacity(series.total_energy_kJ_per_mol, temperature_K)
-        value, se = _per_molecule(cv.value, cv.standard_error, molecule_count)
-        out.baselines["heat_capacity"] = Baseline("heat_capacity", value, se, source,
-                                                  "C_V = <dE^2>/(k T^2), canonical total-energy fluctuations")
-        unconverged += [] if cv.converged else ["heat_capacity"]
+        if canonical:
+            cv = canonical_heat_capacity(series.total_energy_kJ_per_mol, temperature_K)
+            value, se = _per_molecule(cv.value, cv.standard_error, molecule_count)
+            out.baselines["heat_capacity"] = Baseline(
+                "heat_capacity", value, se, source, "C_V = <dE^2>/(k T^2), canonical total-energy fluctuations")
+            unconverged += [] if cv.converged else ["heat_capacity"]
     elif ensemble == "nve":
         if series.kinetic_energy_kJ_per_mol is None or degrees_of_freedom is None:
             out.cautions.append(f"{where}: no kinetic-energy column or no degree-of-freedom count: "
@@ -225,20 +246,62 @@ def energy_file_baselines(
         enthalpy = series.total_energy_kJ_per_mol + pressure * C.bar_nm3_kJ_per_mol * series.volume_nm3
         h = blocked_standard_error(enthalpy)
         value, se = _per_molecule(h.mean, h.standard_error, molecule_count)
-        out.baselines["enthalpy"] = Baseline("enthalpy", value, se, source,
-                                             f"mean of E + p V with p = {pressure:g} bar (barostat reference)")
+        note = f"mean of E + p V with p = {pressure:g} bar (barostat reference)"
+        if not canonical:
+            se, note = max(se, _canonical_spread(degrees_of_freedom, temperature_K, molecule_count)), \
+                f"{note}; {_SPREAD_NOTE}"
+        out.baselines["enthalpy"] = Baseline("enthalpy", value, se, source, note)
+        out.diagnostics["reference_pressure_bar"] = pressure
+        if not canonical:
+            return _with_unconverged(out, unconverged, where)
         cp = canonical_heat_capacity(enthalpy, temperature_K)
         value, se = _per_molecule(cp.value, cp.standard_error, molecule_count)
         out.baselines["isobaric_heat_capacity"] = Baseline(
             "isobaric_heat_capacity", value, se, source, "C_P = <dH^2>/(k T^2), isothermal-isobaric enthalpy fluctuations")
-        out.diagnostics["reference_pressure_bar"] = pressure
         unconverged += [p for p, ok in (("enthalpy", h.converged), ("isobaric_heat_capacity", cp.converged)) if not ok]
+    return _with_unconverged(out, unconverged, where)
+
+
+def _with_unconverged(out: BaselineSet, unconverged: list[str], where: str) -> BaselineSet:
     if unconverged:
         out.cautions.append(
             f"{where}: the block standard errors of {', '.join(unconverged)} reached no plateau "
             "(Flyvbjerg-Petersen): the run is short against its correlation time and the errors are "
             "underestimated")
     return out
+
+
+_SPREAD_NOTE = ("standard error raised to the canonical spread kT sqrt(f) of one sample (the run did not "
+                "sample canonical fluctuations; see the cautions)")
+
+
+def _canonical_spread(dof: float | None, temperature_K: float, molecule_count: float) -> float:
+    """kT·sqrt(f) per mole of molecules, kJ/mol: the canonical standard deviation of the energy
+    of f harmonic modes (var E = k T² C_V with C_V = f k), the error of a one-sample mean."""
+    f = float(dof) if dof else 0.0
+    return C.gas_constant_J_per_mol_K * temperature_K / 1000.0 * math.sqrt(f) / molecule_count
+
+
+def _canonical_sampling(series: EnergySeries, dof: float | None, molecule_count: float, temperature_K: float,
+                        out: BaselineSet) -> bool:
+    """Whether the kinetic energy fluctuates as in a canonical run (x = 1); cautions if not or unknown."""
+    where = f"energy file '{series.path}'"
+    if series.kinetic_energy_kJ_per_mol is None or not dof:
+        out.cautions.append(f"{where}: no kinetic energy (or no degree-of-freedom count), so the canonical "
+                            "sampling of the run cannot be checked; the fluctuation heat capacity assumes it")
+        return True
+    x, x_se = kinetic_variance_ratio(series.kinetic_energy_kJ_per_mol, dof)
+    out.diagnostics["kinetic_variance_ratio"] = [x, x_se]
+    if abs(x - 1.0) <= CANONICAL_KINETIC_TOLERANCE + 3.0 * x_se:
+        return True
+    spread = _canonical_spread(dof, temperature_K, molecule_count)
+    out.cautions.append(
+        f"{where}: the kinetic energy fluctuates {x:.3f} ± {x_se:.3f} times as much as in a canonical run "
+        "(1 for any canonical run): the run did not sample canonical fluctuations (a thermostat too weak "
+        "for its length, or not canonical); no fluctuation heat capacity from it, and the standard error of "
+        f"its mean energy is raised to the canonical spread of one sample, {spread:.3g} kJ/mol; use a "
+        "longer run or a stronger canonical thermostat")
+    return False
 
 
 def _npt_pressure(series: EnergySeries, pressure_bar: float | None, where: str) -> float:

@@ -39,6 +39,7 @@ import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -172,7 +173,8 @@ def _free_energy_baselines(base: BaselineSet, two_phase: TwoPhaseEntropy | None,
         value = m.value - ts
         se = math.hypot(m.standard_error, temperature_K * two_phase.entropy_se / 1000.0)
         note = (f"{'<E>' if mean == 'energy' else '<H>'} - T S, S = {two_phase.entropy:.6g} J/(mol K) "
-                f"by 2PT with classical weights ({two_phase.table}); correction: that table's Delta A")
+                f"by 2PT with classical weights (table {Path(two_phase.table).name}); correction: that "
+                "table's Delta A")
         out[free] = (Baseline(free, value, se, m.source, note), two_phase.free_energy_correction,
                      two_phase.free_energy_correction_se)
     return out

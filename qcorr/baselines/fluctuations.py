@@ -243,6 +243,15 @@ def microcanonical_heat_capacity(
     )
 
 
+def kinetic_variance_ratio(kinetic_kJ_per_mol: ArrayLike, degrees_of_freedom: float) -> tuple[float, float]:
+    """x = f⟨δK²⟩/(2⟨K⟩²) and its standard error: 1 in any canonical run (the kinetic energy of
+    f quadratic degrees of freedom is Gamma(f/2, kT) whatever the potential), below 1 in NVE."""
+    fl = fluctuation(kinetic_kJ_per_mol)
+    x = float(degrees_of_freedom) * fl.variance / (2.0 * fl.mean**2)
+    rel = math.hypot(fl.variance_se / fl.variance, 2.0 * fl.mean_se / fl.mean) if fl.variance > 0 else math.inf
+    return x, x * rel
+
+
 @dataclass(frozen=True)
 class Drift:
     """Means of the first and second half of a series and how many standard errors apart."""

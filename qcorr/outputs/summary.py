@@ -146,8 +146,10 @@ _BASIS_WORDS = {
 def _intro(basis: str) -> str:
     return (f"Values {_BASIS_WORDS.get(basis, basis)} (mean-square displacements as mass-weighted "
             "atom means), each rounded to the digits its standard error supports (± one "
-            "standard error from the scatter between spectrum segments). Full precision, "
-            "every basis and the provenance are in the CSV table and its JSON sidecar.")
+            "standard error from the scatter between spectrum segments, or from block averages "
+            "of the energy files). Rows of method 'corrected' come first: classical values "
+            "measured from the runs plus the quantum correction, the numbers to publish. Full "
+            "precision, every basis and the provenance are in the CSV table and its JSON sidecar.")
 
 
 def summary_markdown(frame: pd.DataFrame, title: str = "Corrected properties",
