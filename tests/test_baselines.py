@@ -339,3 +339,54 @@ def test_temperature_series_slope_of_a_quadratic_enthalpy():
     assert set(got["classical_source"]) == {"temperature_series"}
     with pytest.raises(ConfigError, match="at least two"):
         temperature_series(frames[:1], name="series")
+
+
+# ------------------------------------------------------------------ kinetic energy of the trajectory
+def _kinetic_dataset(kinetic_kJ, momentum, dof, mass_u=1000.0, atoms=100):
+    import xarray as xr
+
+    from qcorr.baselines import kinetic
+
+    variables = kinetic.kinetic_variables(np.arange(kinetic_kJ.size) * 0.01, kinetic_kJ * 100.0, momentum)
+    ds = xr.Dataset(variables, coords={"group": ["total"]})
+    ds["degrees_of_freedom"] = ("group", [float(dof)])
+    ds["group_mass"] = ("group", [mass_u])
+    ds["atom_count"] = ("group", [float(atoms)])
+    return ds
+
+
+def test_trajectory_kinetic_energy_gives_the_microcanonical_heat_capacity():
+    """A microcanonical harmonic system's kinetic energy (Beta share, module docstring) stored as the
+    spectrum file's per-frame series: C_V = f k (f + 1)/(f + 2) per mole of systems, source
+    kinetic_fluctuation; conserved momentum (constant P) passes the momentum check."""
+    from qcorr.baselines import kinetic
+
+    rng = np.random.default_rng(21)
+    f, n = 300, 20000
+    share = rng.beta(f / 2, f / 2, size=n) * f * R * 100.0 / 1000.0
+    ds = _kinetic_dataset(share, np.tile([1.0, -2.0, 0.5], (n, 1)), f)
+    got = kinetic.trajectory_baselines(ds, ensemble="nve", temperature_K=100.0, molecule_count=1.0)
+    cv = got.baselines["heat_capacity"]
+    assert cv.source == "kinetic_fluctuation"
+    assert abs(cv.value - f * R * (f + 1) / (f + 2)) < 3 * cv.standard_error
+    assert got.diagnostics["trajectory"]["momentum_change_ratio"] == 0.0
+    assert kinetic.trajectory_baselines(ds, ensemble="nvt", temperature_K=100.0, molecule_count=1.0).baselines == {}
+
+
+def test_trajectory_that_contradicts_nve_is_refused():
+    """Momentum that wanders like a thermalised centre of mass (Gaussian, variance M k T per
+    component: ratio 1) and a drifting kinetic energy both contradict NVE."""
+    from qcorr.baselines import kinetic
+
+    rng = np.random.default_rng(22)
+    f, n, mass = 300, 20000, 1000.0
+    share = rng.beta(f / 2, f / 2, size=n) * f * R * 100.0 / 1000.0
+    thermal = math.sqrt(mass * R * 100.0 / 1000.0 * 100.0)  # sqrt(M R T) in g/mol Å/ps at 100 K
+    wandering = rng.normal(0.0, thermal, size=(n, 3))
+    assert kinetic.momentum_change_ratio(wandering, mass, 100.0) == pytest.approx(1.0, rel=0.05)
+    with pytest.raises(PhysicsError, match="total momentum changes"):
+        kinetic.trajectory_baselines(_kinetic_dataset(share, wandering, f, mass), ensemble="nve",
+                                     temperature_K=100.0, molecule_count=1.0)
+    with pytest.raises(PhysicsError, match="drifts"):
+        kinetic.trajectory_baselines(_kinetic_dataset(share * np.linspace(0.9, 1.1, n), np.zeros((n, 3)), f, mass),
+                                     ensemble="nve", temperature_K=100.0, molecule_count=1.0)

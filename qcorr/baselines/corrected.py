@@ -54,6 +54,7 @@ from qcorr.baselines.classical import (
     user_baselines,
 )
 from qcorr.baselines.energy_files import EnergySeries
+from qcorr.baselines.kinetic import trajectory_baselines
 from qcorr.errors import ConfigError
 from qcorr.outputs.table import TableRow, read_table, rows_to_frame
 from qcorr.thermo.harmonic import harmonic_property_rows
@@ -392,6 +393,10 @@ def corrected_properties(
     corrections, cautions = harmonic_corrections(ds, system=system, group=group, source=name)
     molecules = float(ds["molecule_count"].sel(group=group).item())
     sets = []
+    if ensemble == "nve":
+        whole_system_group(ds, group, name, "the trajectory's kinetic energy")
+    sets.append(trajectory_baselines(ds, ensemble=ensemble, temperature_K=temperature, molecule_count=molecules,
+                                     source=name))
     if energy_series is not None:
         whole_system_group(ds, group, name, f"energy file '{energy_series.path}'")
         dof = float(ds["degrees_of_freedom"].sel(group=group).item())
