@@ -125,7 +125,7 @@ def test_gromacs_energy_file_equals_gmx_energy_output():
 @pytest.mark.skipif(not (PYEDR_DATA / "1.edr").is_file(), reason="pyedr's test files are not installed")
 def test_gromacs_file_without_units_is_refused():
     """enx version 1 (pyedr reports every unit as kJ/mol, the temperature's too)."""
-    with pytest.raises(UnitsError, match="1.edr.*Temperature"):
+    with pytest.raises(UnitsError, match="1.edr.*enx version 1"):
         energy_files.read_energy_file(PYEDR_DATA / "1.edr", "gromacs-edr")
 
 
@@ -390,3 +390,55 @@ def test_trajectory_that_contradicts_nve_is_refused():
     with pytest.raises(PhysicsError, match="drifts"):
         kinetic.trajectory_baselines(_kinetic_dataset(share * np.linspace(0.9, 1.1, n), np.zeros((n, 3)), f, mass),
                                      ensemble="nve", temperature_K=100.0, molecule_count=1.0)
+
+
+# ------------------------------------------------------------------ the commands refuse bad input
+@pytest.fixture(scope="module")
+def oscillator_spectrum(oscillator_files, tmp_path_factory):
+    """Spectrum file of the analytic diatomic scenario (conftest), for the command tests."""
+    from conftest import OSC_MASS_U, OSC_SEGMENT_PS
+
+    from qcorr.cli import main
+
+    out = tmp_path_factory.mktemp("baseline_commands") / "dimers.nc"
+    assert main(["spectrum", "--topology", str(oscillator_files["topology"]),
+                 "--trajectory", str(oscillator_files["trr"]), "--temperature", "300", "--segment-ps",
+                 str(OSC_SEGMENT_PS), "--mass", f"O={OSC_MASS_U}", "--progress", "never",
+                 "--output", str(out)]) == 0
+    return out
+
+
+def _one_line_error(run_qcorr, argv, output, *fragments):
+    code, _, err = run_qcorr(*argv)
+    lines = [line for line in err.splitlines() if line.startswith("qcorr: error:")]
+    assert code == 2 and len(lines) == 1, err
+    for fragment in fragments:
+        assert fragment in lines[0], (fragment, lines[0])
+    assert not Path(output).exists() and not table.sidecar_path(output).exists()
+
+
+def test_commands_refuse_bad_input_with_one_line(oscillator_spectrum, tmp_path, run_qcorr):
+    energy = tmp_path / "e.csv"
+    energy.write_text('#"Time (ps)","Total Energy (kJ/mole)","Temperature (K)"\n'
+                      + "".join(f"{i * 0.1},{-100 + (i % 7)},{300 + (i % 5)}\n" for i in range(100)))
+    out = tmp_path / "out.csv"
+    base = ["corrected", oscillator_spectrum, "--output", out]
+    _one_line_error(run_qcorr, [*base, "--ensemble", "nvt", "--energy-file", energy], out, "--energy-format")
+    _one_line_error(run_qcorr, [*base, "--ensemble", "nvt", "--energy-file", energy, "--energy-format",
+                                "gromacs-edr"], out, "e.csv", "not a readable GROMACS energy file")
+    _one_line_error(run_qcorr, [*base, "--ensemble", "nvt", "--reference", "heat_capacity=75"], out,
+                    "--reference", "SOURCE")
+    _one_line_error(run_qcorr, [*base, "--ensemble", "nvt", "--classical-value", "entropy=3"], out,
+                    "--classical-value entropy")
+    _one_line_error(run_qcorr, [*base, "--ensemble", "npt", "--energy-file", energy, "--energy-format",
+                                "openmm-csv"], out, "e.csv", "no volume column")
+    _one_line_error(run_qcorr, [*base, "--ensemble", "nvt", "--group", "water"], out, "--group", "no group 'water'")
+    good = tmp_path / "good.csv"
+    code, _, err = run_qcorr(*["corrected", oscillator_spectrum, "--output", good, "--ensemble", "nvt",
+                               "--classical-value", "energy=-10", "--quiet"])
+    assert code == 0, err
+    _one_line_error(run_qcorr, ["series", good, "--name", "s", "--output", out], out, "at least two")
+    _one_line_error(run_qcorr, ["series", good, good, "--name", "s", "--output", out, "--experiment", "300=75"],
+                    out, "--experiment-source")
+    _one_line_error(run_qcorr, ["vaporisation", "--liquid", good, "--gas", good, "--name", "p", "--output", out,
+                                "--reference", "44"], out, "--reference", "SOURCE")

@@ -130,9 +130,29 @@ def _array(values, where: str, name: str) -> FloatArray:
     return arr
 
 
+#: first XDR integer of an .edr file of enx version >= 2 (GROMACS enxio; pyedr checks the same)
+EDR_MAGIC = -55555
+#: an enx version 1 file starts with its number of energy terms instead (a few dozen)
+EDR_VERSION_1_TERMS_LIMIT = 10000
+
+
+def _check_edr_magic(path: Path, where: str) -> None:
+    """Refuse a file that does not start like an .edr file before pyedr reads it (pyedr takes any
+    positive first integer for the term count of an old file and allocates that many objects)."""
+    head = path.open("rb").read(4)
+    first = int.from_bytes(head, "big", signed=True) if len(head) == 4 else 0
+    if first == EDR_MAGIC:
+        return
+    if 0 < first < EDR_VERSION_1_TERMS_LIMIT:
+        raise UnitsError(f"{where} is an enx version 1 file, which records no units (pyedr reports every unit "
+                         "as kJ/mol); give an energy file of enx version 2 or later")
+    raise ConfigError(f"{where} is not a readable GROMACS energy file (no .edr magic number); check "
+                      "--energy-format")
+
+
 def _gromacs(path: Path, where: str) -> EnergySeries:
     pyedr = _library("pyedr", "pyedr", where)
-
+    _check_edr_magic(path, where)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # pyedr notes the enx file version on every read
         try:
