@@ -193,7 +193,8 @@ def measure_read(top: str, traj: str) -> dict:
 def measure_library(top: str, traj: str) -> dict:
     import MDAnalysis as mda
 
-    from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings, segment_frames_for
+    from qcorr.spectra.estimator import SegmentAccumulator
+    from qcorr.spectra.segments import SpectrumSettings, segment_frames_for
 
     clock = Clock()
     u = mda.Universe(top, traj)
@@ -223,10 +224,9 @@ def import_everything() -> None:
     import qcorr.cli
     import qcorr.cli.combine_command
     import qcorr.cli.spectrum_command
-    import qcorr.reading.trajectory
-    import qcorr.spectra.diagnostics
-    import qcorr.spectra.estimator
-    import qcorr.spectra.spectrum_file
+    import qcorr.cli.spectrum_report
+    import qcorr.spectra.analysis
+    import qcorr.spectra.blocks
 
     qcorr.cli.build_parser()
 

@@ -2,7 +2,8 @@
 
 Each check returns a :class:`Diagnostic` (check name, ``"ok"`` or ``"warning"``,
 one-line message).  :func:`run_diagnostics` runs all of them on a spectrum
-dataset; :func:`announce` emits the warnings as :class:`~qcorr.errors.QcorrWarning`.
+dataset (:func:`diagnose` also records them in the dataset); :func:`announce` emits
+the warnings as :class:`~qcorr.errors.QcorrWarning`.
 The list is stored in the spectrum file as the JSON attribute ``diagnostics``.
 
 Thresholds (module constants) are common practice, not published standards:
@@ -179,6 +180,16 @@ ALL_CHECKS = (check_aliasing, check_resolution, check_temperature, check_centre_
 def run_diagnostics(ds: xr.Dataset) -> list[Diagnostic]:
     """Run every check on a spectrum dataset (its ``diagnostics`` attribute is not needed)."""
     return [check(ds) for check in ALL_CHECKS]
+
+
+def diagnose(ds: xr.Dataset) -> list[Diagnostic]:
+    """Run every check and record the list in ``ds.attrs["diagnostics"]`` (JSON); return it.
+
+    Warnings are not emitted here (see :func:`announce`).
+    """
+    checks = run_diagnostics(ds)
+    ds.attrs["diagnostics"] = to_json(checks)
+    return checks
 
 
 def to_json(diagnostics: list[Diagnostic]) -> str:
