@@ -185,11 +185,15 @@ def evenly_spaced_frames(frames, n_frames: int) -> tuple[int, int, int]:
     if values.min() < 0 or values.max() >= n_frames:
         raise ConfigError(f"frames: indices must lie in 0..{n_frames - 1} (the trajectory's frames)")
     steps = np.diff(values)
-    if steps[0] <= 0 or np.any(steps != steps[0]):
-        bad = int(np.flatnonzero(steps != steps[0])[0]) + 1 if np.any(steps != steps[0]) else 1
+    if np.any(steps <= 0):
+        raise ConfigError("frames: the selection must be ascending without repeats; sort it or use "
+                          "start/stop/step")
+    uneven = np.flatnonzero(steps != steps[0])
+    if uneven.size:
+        bad = int(uneven[0]) + 1
         raise ConfigError(
-            f"frames: the selection must be ascending and evenly spaced (a spectrum needs a "
-            f"uniform time step); position {bad} (frame {int(values[bad])}) breaks the step "
+            f"frames: the selection must be evenly spaced (a spectrum needs a uniform time step); "
+            f"frame {int(values[bad])} follows frame {int(values[bad - 1])}, not the step "
             f"{int(steps[0])}; use start/stop/step instead"
         )
     return int(values[0]), int(values[-1]) + 1, int(steps[0])

@@ -512,7 +512,7 @@ class VibrationalSpectrum(AnalysisBase):
         # neighbouring parts read shared frames; keep each frame once
         self.frames, first = np.unique(self.frames, return_index=True)
         self.times = self.times[first]
-        announce(checks)
+        announce(checks, stacklevel=5)  # warn at the caller of run()
 
     # ------------------------------------------------------------------ output
     def save(self, path: str | os.PathLike[str]) -> Path:

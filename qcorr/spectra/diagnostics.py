@@ -197,8 +197,11 @@ def to_json(diagnostics: list[Diagnostic]) -> str:
     return json.dumps([asdict(d) for d in diagnostics], sort_keys=True)
 
 
-def announce(diagnostics: list[Diagnostic]) -> None:
-    """Emit every warning as a :class:`~qcorr.errors.QcorrWarning`."""
+def announce(diagnostics: list[Diagnostic], stacklevel: int = 2) -> None:
+    """Emit every warning as a :class:`~qcorr.errors.QcorrWarning`.
+
+    *stacklevel* is passed to :func:`warnings.warn` (2: the caller of this function).
+    """
     for d in diagnostics:
         if d.status != "ok":
-            warnings.warn(f"{d.check}: {d.message}", QcorrWarning, stacklevel=2)
+            warnings.warn(f"{d.check}: {d.message}", QcorrWarning, stacklevel=stacklevel)
