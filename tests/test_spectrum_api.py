@@ -188,8 +188,8 @@ def test_molecular_demo_water_in_parallel(source):
     distributed = pytest.importorskip("distributed")
     u = mda.Universe(str(DEMO / "water_flexible_298K" / "topology.pdb"),
                      str(DEMO / "water_flexible_298K" / "trajectory.trr"))
-    options = dict(groups={"water": "resname TIP3", "oxygen": "name OH2"}, segment_ps=0.6, molecular=True,
-                   velocities_from=source)
+    options = {"groups": {"water": "resname TIP3", "oxygen": "name OH2"}, "segment_ps": 0.6,
+               "molecular": True, "velocities_from": source}
 
     def spectrum():
         with warnings.catch_warnings():
