@@ -139,10 +139,7 @@ class VelocitySampler:
         SamplingError
             An interval unlike the window's time step (names the frame and both intervals).
         """
-        from MDAnalysis.exceptions import NoDataError
-
         opened, window, idx = self.opened, self.window, self._idx
-        frame_no = window.frame(position)
         time_ps = float(ts.time) * self._time_factor
         if self._previous_time is not None:
             check_one_interval(opened, window, position, time_ps - self._previous_time,
@@ -150,15 +147,12 @@ class VelocitySampler:
         self._previous_time = time_ps
         masses, total_mass = self._masses, self._total_mass
         if self.source == "stored":
-            try:
-                if not ts.has_velocities:
-                    raise NoDataError
-                raw = ts.velocities
-            except NoDataError:
+            if not ts.has_velocities:
                 raise TrajectoryError(
-                    f"{opened.where(frame_no)} has no velocities; pass "
+                    f"{opened.where(window.frame(position))} has no velocities; pass "
                     "--velocities-from positions to derive them from positions by finite differences"
-                ) from None
+                )
+            raw = ts.velocities
             factor_v = self._velocity_factor
             if self._single:
                 selected = raw if self._all_atoms else raw[idx]
@@ -166,7 +160,7 @@ class VelocitySampler:
                 cx, cy, cz = (np.dot(masses, selected.astype(np.float64))
                               * (factor_v / total_mass)).tolist()
                 if not math.isfinite(cx + cy + cz):
-                    _check_finite(selected, opened, idx, frame_no, "velocity")
+                    _check_finite(selected, opened, idx, window, position, "velocity")
                 v = np.multiply(selected, np.float32(factor_v)) if factor_v != 1.0 else selected
                 v = _minus_vector(v, np.array((cx, cy, cz), np.float32))
                 self._count(position, cx * cx + cy * cy + cz * cz, ts.dimensions)
@@ -175,12 +169,12 @@ class VelocitySampler:
             v = np.array(raw if self._all_atoms else raw[idx], dtype=np.float64)
             if factor_v != 1.0:
                 v *= factor_v
-            _check_finite(v, opened, idx, frame_no, "velocity")
+            _check_finite(v, opened, idx, window, position, "velocity")
             box = ts.dimensions
             sample = position
         else:
             x = np.array(ts.positions if self._all_atoms else ts.positions[idx], dtype=np.float64)
-            _check_finite(x, opened, idx, frame_no, "position")
+            _check_finite(x, opened, idx, window, position, "position")
             if self._previous_positions is None:
                 self._previous_positions = x
                 self._previous_box = ts.dimensions
@@ -386,14 +380,16 @@ def _atom_label(universe, channel_indices, channel) -> str:
     return f"atom index {atom.index} (name {name}, residue {resname} {resid})"
 
 
-def _check_finite(values, opened: OpenedTrajectory, idx, frame_no: int, what: str) -> None:
+def _check_finite(values, opened: OpenedTrajectory, idx, window: FrameWindow, position: int,
+                  what: str) -> None:
+    """Raise a TrajectoryError naming the frame (window position) and the first atom with a NaN or Inf."""
     if np.isfinite(values.sum()):  # fast path: the sum of finite values is finite (no overflow here)
         return
     finite = np.isfinite(values)
     if not finite.all():
         channel = int(np.flatnonzero(~finite.all(axis=1))[0])
         raise TrajectoryError(
-            f"{opened.where(frame_no)} has a non-finite {what} (NaN or Inf) for "
+            f"{opened.where(window.frame(position))} has a non-finite {what} (NaN or Inf) for "
             f"{_atom_label(opened.universe, idx, channel)}; the file is corrupt there, choose a window "
             "before it with --stop"
         )

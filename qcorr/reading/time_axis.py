@@ -138,8 +138,10 @@ def check_one_interval(opened: OpenedTrajectory, window: FrameWindow, index: int
     SamplingError
         Naming the frame (and its file) and both intervals.
     """
-    tol = INTERVAL_TOLERANCE * abs(reference) + _float32_spacing(time_ps)
-    if not abs(interval - reference) <= tol:
+    difference = abs(interval - reference)
+    if difference <= INTERVAL_TOLERANCE * abs(reference):  # fast path: no float32 spacing needed
+        return
+    if not difference <= INTERVAL_TOLERANCE * abs(reference) + _float32_spacing(time_ps):
         raise SamplingError(
             f"{opened.where(window.frame(index))} (t = {time_ps:g} ps) follows the "
             f"previous frame by {interval:.4g} ps instead of the regular {reference:.4g} ps (missing, "

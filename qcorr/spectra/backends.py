@@ -33,7 +33,12 @@ import pickle
 from collections.abc import Callable, Sequence
 
 import numpy as np
-from MDAnalysis.analysis.backends import BackendBase, BackendSerial
+from MDAnalysis.analysis.backends import (
+    BackendBase,
+    BackendDask,
+    BackendMultiprocessing,
+    BackendSerial,
+)
 
 from qcorr.errors import ConfigError
 
@@ -252,7 +257,9 @@ def resolve_backend(backend, n_workers: int | None, parts: int):
         ``n_workers`` to pass to :meth:`MDAnalysis.analysis.base.AnalysisBase.run`
         (None: the backend object's own).
     unsupported : bool
-        Whether ``unsupported_backend=True`` is needed (qcorr's own backends).
+        Whether ``unsupported_backend=True`` is needed: for qcorr's own backends and for
+        objects of MDAnalysis' built-in backend classes (MDAnalysis accepts those only by
+        name otherwise); other backend objects need the caller's ``unsupported_backend``.
     processes : int
         Processes (or dask workers) that compute parts, at most *parts*.
     """
@@ -263,7 +270,8 @@ def resolve_backend(backend, n_workers: int | None, parts: int):
         backend = DaskBackend(None if n_workers is None else min(workers, parts))
     if backend == "serial":
         return backend, n_workers, False, 1
-    unsupported = isinstance(backend, (ProcessBackend, DaskBackend))
+    unsupported = isinstance(backend, (ProcessBackend, DaskBackend, BackendMultiprocessing, BackendDask,
+                                       BackendSerial))
     if isinstance(backend, BackendSerial):
         return backend, None, unsupported, 1
     return backend, None, unsupported, max(1, min(parts, int(getattr(backend, "n_workers", 1) or 1)))
