@@ -324,6 +324,7 @@ class VibrationalSpectrum(AnalysisBase):
             if any(x is not None for x in (start, stop, step)):
                 raise ConfigError("frames: give either frames or start/stop/step, not both")
             start, stop, step = evenly_spaced_frames(frames, self._trajectory.n_frames)
+        self.results = Results()  # a second run starts afresh (and ships no old results to workers)
         backend = "serial" if backend is None else backend
         workers = requested_workers(backend, n_workers, n_parts, verbose=bool(verbose))
         self._plan = self._plan_run(start, stop, step, workers if n_parts is None else int(n_parts))

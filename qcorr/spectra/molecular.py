@@ -125,6 +125,7 @@ class MoleculeLayout:
 
     @property
     def n_molecules(self) -> int:
+        """Number of molecules."""
         return int(self.molecule_mass.size)
 
 

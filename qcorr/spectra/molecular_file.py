@@ -158,6 +158,7 @@ def add_molecular_variables(ds: xr.Dataset, parts: MolecularParts) -> xr.Dataset
     cm, one = "cm", "1"
 
     def var(dims, values, units, long_name, **extra):
+        """An xarray variable tuple with its CF ``units`` and ``long_name``."""
         return (dims, values, {"units": units, "long_name": long_name, **extra})
 
     data = {

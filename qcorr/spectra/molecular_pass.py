@@ -146,7 +146,7 @@ class MolecularPass:
     channel_indices, masses : arrays (n_channels,)
         Atom indices and masses (u) of the spectrum channels.
     group_members : bool array (n_groups, n_channels)
-    settings : qcorr.spectra.estimator.SpectrumSettings
+    settings : qcorr.spectra.segments.SpectrumSettings
     first_frame : int
         Trajectory frame used to detect linear molecules (the window's first frame,
         so that every frame block of a run finds the same layout).
