@@ -162,6 +162,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--frames", type=int, default=24000)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--old-tree", default=None, help="a copy of an earlier qcorr to time beside this one")
+    parser.add_argument("--old-label", default=None, help="name of the old tree in the table (default: its path)")
     parser.add_argument("--workdir", default=None, help="directory for the trajectory (default: a temporary one)")
     parser.add_argument("--write", action="store_true", help="write the section of docs/performance.md")
     parser.add_argument("--measure", help=argparse.SUPPRESS)
@@ -182,9 +183,9 @@ def main(argv: list[str] | None = None) -> int:
                      "mdanalysis_pool", 2, str(REPO)),
                     ("this tree, class with ProcessBackend spawning its workers, 2", "spawn", 2, str(REPO))]
         if args.old_tree:
-            variants += [(f"old tree ({args.old_tree}), --threads 1", "command", 1, args.old_tree),
-                         (f"old tree ({args.old_tree}), --threads 2 (spawned workers, caller takes parts)",
-                          "command", 2, args.old_tree)]
+            old = args.old_label or args.old_tree
+            variants += [(f"old tree ({old}), --threads 1", "command", 1, args.old_tree),
+                         (f"old tree ({old}), --threads 2", "command", 2, args.old_tree)]
         load_before = os.getloadavg()
         best: dict[str, float] = {}
         cpu: dict[str, float] = {}
@@ -215,7 +216,10 @@ def main(argv: list[str] | None = None) -> int:
         f"{os.cpu_count()} logical cores."),
         "",
         ("CPU s is the user + system time of every process of the run (the command's, the forkserver's, "
-         "the workers'), imports included: what the run cost the machine."),
+         "the workers'), imports included: what the run cost the machine. A second process helps only "
+         "when a core is free: on a machine busy with other work (load average near or above the core "
+         "count) the two-process runs can take longer than one process, and the wall times scatter "
+         "widely between repeats."),
         "",
         "| run | wall s | speed-up vs this tree, 1 process | CPU s, all processes | max VDOS difference vs 1 process |",
         "|---|---:|---:|---:|---:|",
