@@ -345,10 +345,10 @@ def test_temperature_series_slope_of_a_quadratic_enthalpy():
 def _kinetic_dataset(kinetic_kJ, momentum, dof, mass_u=1000.0, atoms=100):
     import xarray as xr
 
-    from qcorr.baselines import kinetic
+    from qcorr.spectra.kinetic_series import kinetic_variables
 
-    variables = kinetic.kinetic_variables(np.arange(kinetic_kJ.size) * 0.01, kinetic_kJ * 100.0, momentum)
-    ds = xr.Dataset(variables, coords={"group": ["total"]})
+    variables = kinetic_variables(np.arange(kinetic_kJ.size) * 0.01, kinetic_kJ * 100.0, momentum)
+    ds = xr.Dataset(variables, coords={"group": ["total"]}, attrs={"temperature_K": 100.0})
     ds["degrees_of_freedom"] = ("group", [float(dof)])
     ds["group_mass"] = ("group", [mass_u])
     ds["atom_count"] = ("group", [float(atoms)])

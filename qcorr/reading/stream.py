@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import NDArray
@@ -50,11 +50,19 @@ class FrameStatistics:
         Sum of box volumes (Å³); 0 for frames without a box.
     com_kinetic_sum : float
         Sum over frames of M |V_com|² before removal (u Å² ps⁻²).
+    samples, kinetic, momentum : list
+        Per counted frame (see the comments of the fields).
     """
 
     frames: int = 0
     box_volume_sum_A3: float = 0.0
     com_kinetic_sum: float = 0.0
+    #: per counted sample: its window index, Σ ½ m v² after the centre-of-mass removal
+    #: (u Å² ps⁻²) and the total momentum Σ m v before it (u Å ps⁻¹): the series of the
+    #: microcanonical heat capacity (:mod:`qcorr.baselines.kinetic`)
+    samples: list = field(default_factory=list)
+    kinetic: list = field(default_factory=list)
+    momentum: list = field(default_factory=list)
 
 
 class VelocitySampler:
@@ -163,7 +171,7 @@ class VelocitySampler:
                     _check_finite(selected, opened, idx, window, position, "velocity")
                 v = np.multiply(selected, np.float32(factor_v)) if factor_v != 1.0 else selected
                 v = _minus_vector(v, np.array((cx, cy, cz), np.float32))
-                self._count(position, cx * cx + cy * cy + cz * cz, ts.dimensions)
+                self._count(position, (cx, cy, cz), ts.dimensions, v)
                 self.sample = position
                 return v
             v = np.array(raw if self._all_atoms else raw[idx], dtype=np.float64)
@@ -197,22 +205,28 @@ class VelocitySampler:
             self._previous_box = current_box
         com = masses @ v / total_mass
         v -= com
-        self._count(sample, float(com @ com), box)
+        self._count(sample, tuple(com.tolist()), box, v)
         self.sample = sample
         return v
 
-    def _count(self, sample: int, com_square: float, dims) -> None:
-        """Add one sample's box volume and M |V_com|^2 to the statistics (if counted).
+    def _count(self, sample: int, com: tuple[float, float, float], dims, velocities) -> None:
+        """Add one sample's box volume, M |V_com|², kinetic energy and momentum to the
+        statistics (if counted).
 
-        The box volume is recomputed only when the box's bytes change (constant-volume
-        runs compute it once).
+        *com* is the centre-of-mass velocity removed (Å/ps), *velocities* the sample after
+        its removal.  The box volume is recomputed only when the box's bytes change
+        (constant-volume runs compute it once).
         """
         statistics = self.statistics
         stop = self.count_stop
         if statistics is None or sample < self.count_from or (stop is not None and sample >= stop):
             return
+        mass = self._total_mass
         statistics.frames += 1
-        statistics.com_kinetic_sum += self._total_mass * com_square
+        statistics.com_kinetic_sum += mass * (com[0] * com[0] + com[1] * com[1] + com[2] * com[2])
+        statistics.samples.append(sample)
+        statistics.kinetic.append(0.5 * float(np.dot(self._masses, np.einsum("ij,ij->i", velocities, velocities))))
+        statistics.momentum.append((mass * com[0], mass * com[1], mass * com[2]))
         if dims is None:
             return
         key = dims.tobytes()

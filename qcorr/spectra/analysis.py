@@ -474,6 +474,9 @@ class VibrationalSpectrum(AnalysisBase):
             box_volume_sum_A3=stats.box_volume_sum_A3,
             com_mv2_sum=stats.com_kinetic_sum,
             molecular=molecular,
+            kinetic_samples=np.asarray(stats.samples, dtype=np.int64),
+            kinetic_u_A2_per_ps2=np.asarray(stats.kinetic, dtype=float),
+            momentum_u_A_per_ps=np.asarray(stats.momentum, dtype=float).reshape(-1, 3),
         )
         self._sampler = self._accumulator = self._molecular_pass = self._statistics = None
 

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import xarray as xr
@@ -73,6 +73,12 @@ class SpectrumParts:
         Sum over those frames of M |V_com|² before its removal, u Å² ps⁻².
     molecular : MolecularParts or None
         Molecular decomposition (``--molecular``), for the same segments.
+    kinetic_samples : int array (n_frames,)
+        Window index of every counted frame (the frames of the sums above), in order.
+    kinetic_u_A2_per_ps2 : float array (n_frames,)
+        Σ ½ m v² of the whole system after the centre-of-mass removal, u Å² ps⁻².
+    momentum_u_A_per_ps : float array (n_frames, 3)
+        Total momentum Σ m v before the removal, u Å ps⁻¹.
     """
 
     raw_segments: NDArray[np.float64]
@@ -85,6 +91,9 @@ class SpectrumParts:
     box_volume_sum_A3: float
     com_mv2_sum: float
     molecular: MolecularParts | None = None
+    kinetic_samples: NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+    kinetic_u_A2_per_ps2: NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
+    momentum_u_A_per_ps: NDArray[np.float64] = field(default_factory=lambda: np.zeros((0, 3)))
 
 
 def group_table(groups) -> dict[str, np.ndarray]:
@@ -368,4 +377,10 @@ def spectrum_from_parts(parts: SpectrumParts, table: Mapping[str, np.ndarray],
         segment_first_frame=parts.segment_first_frame,
         attrs=attrs,
     )
+    if parts.kinetic_samples.size:
+        from qcorr.spectra.kinetic_series import kinetic_variables
+
+        timestep = float(attrs["timestep_ps"])
+        ds = ds.assign(kinetic_variables(parts.kinetic_samples * timestep, parts.kinetic_u_A2_per_ps2,
+                                         parts.momentum_u_A_per_ps))
     return ds if parts.molecular is None else add_molecular_variables(ds, parts.molecular)

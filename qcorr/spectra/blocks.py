@@ -83,6 +83,9 @@ def join_spectrum_parts(parts: list[SpectrumParts]) -> SpectrumParts:
         box_volume_sum_A3=float(sum(p.box_volume_sum_A3 for p in parts)),
         com_mv2_sum=float(sum(p.com_mv2_sum for p in parts)),
         molecular=None if molecular[0] is None else join_molecular_parts(molecular),
+        kinetic_samples=np.concatenate([p.kinetic_samples for p in parts]),
+        kinetic_u_A2_per_ps2=np.concatenate([p.kinetic_u_A2_per_ps2 for p in parts]),
+        momentum_u_A_per_ps=np.concatenate([p.momentum_u_A_per_ps for p in parts]),
     )
 
 
@@ -105,7 +108,21 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
         box_volume_sum_A3=float(ds.attrs["mean_box_volume_A3"]) * frames,
         com_mv2_sum=float(ds.attrs["centre_of_mass_mv2_u_A2_per_ps2"]) * frames,
         molecular=molecular,
+        **_kinetic_series_of(ds),
     )
+
+
+def _kinetic_series_of(ds: xr.Dataset) -> dict[str, np.ndarray]:
+    """The per-frame kinetic-energy series of a spectrum dataset as SpectrumParts fields (empty if
+    the file has none: made before they were stored)."""
+    from qcorr.spectra.kinetic_series import FRAME_TIME, KINETIC_ENERGY, KJ_PER_MOL_IN_U_A2_PER_PS2, TOTAL_MOMENTUM
+
+    if KINETIC_ENERGY not in ds:
+        return {}
+    samples = np.rint(np.asarray(ds[FRAME_TIME].values, dtype=float) / float(ds.attrs["timestep_ps"]))
+    return {"kinetic_samples": samples.astype(np.int64),
+            "kinetic_u_A2_per_ps2": np.asarray(ds[KINETIC_ENERGY].values, dtype=float) * KJ_PER_MOL_IN_U_A2_PER_PS2,
+            "momentum_u_A_per_ps": np.asarray(ds[TOTAL_MOMENTUM].values, dtype=float)}
 
 
 def _same(values: list, what: str, names: list[str]) -> None:

@@ -367,7 +367,27 @@ def check_sum_rule(ds: xr.Dataset) -> Diagnostic:
     return Diagnostic("sum_rule", _status(s.exceeded), msg)
 
 
-ALL_CHECKS = (check_aliasing, check_resolution, check_temperature, check_centre_of_mass, check_sum_rule)
+def check_kinetic_series(ds: xr.Dataset) -> Diagnostic:
+    """Informational: the per-frame kinetic energy's variance against the canonical one, the
+    change of the total momentum and the kinetic energy of the two halves of the run (they back
+    up a declared ensemble; judged only when one is declared, :mod:`qcorr.baselines.kinetic`)."""
+    from qcorr.spectra.kinetic_series import series_diagnostics
+
+    found = series_diagnostics(ds)
+    if not found:
+        return Diagnostic("kinetic_energy_series", "ok", "no per-frame kinetic energy in this file")
+    x, x_se = found["kinetic_variance_ratio"]
+    halves = found["kinetic_energy_halves_kJ_per_mol"]
+    return Diagnostic("kinetic_energy_series", "ok", (
+        f"{found['frames']} frames: kinetic-energy variance {x:.3f} ± {x_se:.3f} times the canonical "
+        "(f/2)(kT)^2 (1 in NVT/NPT, below 1 in NVE); total-momentum variance "
+        f"{found['momentum_change_ratio']:.3g} times 3MkT (0 when conserved); mean kinetic energy "
+        f"{halves[0]:.6g} and {halves[1]:.6g} kJ/mol in the two halves "
+        f"({found['kinetic_energy_halves_standard_errors_apart']:.1f} standard errors apart)"))
+
+
+ALL_CHECKS = (check_aliasing, check_resolution, check_temperature, check_centre_of_mass, check_sum_rule,
+              check_kinetic_series)
 
 
 def run_diagnostics(ds: xr.Dataset) -> list[Diagnostic]:
