@@ -186,7 +186,8 @@ def ase_copper(directory: Path, steps: int = 20) -> dict[str, np.ndarray]:
 
 def openmm_argon_nve(directory: Path, *, reduced_temperature: float = 1.0, atoms_per_side: int = 4,
                      equilibration_ps: float = 40.0, production_ps: float = 500.0, timestep_fs: float = 10.0,
-                     steps_per_frame: int = 2, seed: int = 31) -> dict[str, float]:
+                     steps_per_frame: int = 2, seed: int = 31,
+                     production_friction_per_ps: float | None = None) -> dict[str, float]:
     """A microcanonical Lennard-Jones argon liquid (OpenMM, CPU platform, one thread).
 
     fcc start at ρ* = 0.8442, 4·atoms_per_side³ atoms; LJ with OpenMM's switching function
@@ -195,11 +196,17 @@ def openmm_argon_nve(directory: Path, *, reduced_temperature: float = 1.0, atoms
     ``topology.pdb`` and ``trajectory.trr`` (on-step velocities v(t) = v(t − dt/2) + (dt/2)F/m,
     every *steps_per_frame* steps) and ``energies.csv`` (``StateDataReporter``, same steps).
     Returns the degrees of freedom (3N − 3: the centre-of-mass motion is removed) and the run's
-    mean kinetic temperature (K).
+    mean kinetic temperature (K).  With *production_friction_per_ps* the production is not NVE
+    but Langevin dynamics (``LangevinMiddleIntegrator``) without centre-of-mass removal, the
+    case the NVE checks must catch.
     """
     import openmm as mm
     import openmm.app as app
     import openmm.unit as unit
+
+    scripts = str(Path(__file__).resolve().parent.parent / "scripts")
+    if scripts not in sys.path:
+        sys.path.append(scripts)
     from make_validation_data import TrajectoryRecorder
 
     sigma_nm = SIGMA_A / 10.0
@@ -224,7 +231,8 @@ def openmm_argon_nve(directory: Path, *, reduced_temperature: float = 1.0, atoms
         force.addParticle(0.0, sigma_nm, epsilon)
         topology.addAtom("Ar", app.element.argon, topology.addResidue("AR", chain))
     system.addForce(force)
-    system.addForce(mm.CMMotionRemover())
+    if production_friction_per_ps is None:
+        system.addForce(mm.CMMotionRemover())
     topology.setPeriodicBoxVectors(np.eye(3) * box)
     temperature = reduced_temperature * EPSILON_K
     platform = mm.Platform.getPlatformByName("CPU")
@@ -242,7 +250,12 @@ def openmm_argon_nve(directory: Path, *, reduced_temperature: float = 1.0, atoms
     velocities = state.getVelocities(asNumpy=True).value_in_unit(unit.nanometer / unit.picosecond)
     velocities -= velocities.mean(axis=0)  # equal masses: no centre-of-mass motion from the first frame on
     dt = timestep_fs / 1000.0
-    simulation = app.Simulation(topology, system, mm.VerletIntegrator(dt), platform, properties)
+    if production_friction_per_ps is None:
+        integrator = mm.VerletIntegrator(dt)
+    else:
+        integrator = mm.LangevinMiddleIntegrator(temperature, production_friction_per_ps, dt)
+        integrator.setRandomNumberSeed(seed + 1)
+    simulation = app.Simulation(topology, system, integrator, platform, properties)
     simulation.context.setPositions(state.getPositions())
     simulation.context.setVelocities(velocities)
     masses = np.full(n, ARGON_MASS_U)
