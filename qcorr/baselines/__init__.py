@@ -17,5 +17,19 @@ Modules, one concept each:
 * ``corrected``: the corrected rows (classical baseline + harmonic correction) of one system;
 * ``temperature_series``: C_P(T) from the slope of H(T) over systems at several temperatures,
   and its figure;
+* ``kinetic``: the microcanonical heat capacity from the spectrum file's per-frame kinetic
+  energy (the series itself is laid out by :mod:`qcorr.spectra.kinetic_series`);
 * ``vaporisation``: the corrected heat of vaporisation of a liquid–gas pair.
+
+Public functions: :func:`~qcorr.baselines.energy_files.read_energy_file`,
+:func:`~qcorr.baselines.corrected.corrected_properties` (``qcorr corrected``),
+:func:`~qcorr.baselines.temperature_series.temperature_series` and
+:func:`~qcorr.baselines.temperature_series.series_figure` (``qcorr series``),
+:func:`~qcorr.baselines.vaporisation.vaporisation_enthalpy` (``qcorr vaporisation``); the
+building blocks :func:`~qcorr.baselines.classical.energy_file_baselines`,
+:func:`~qcorr.baselines.kinetic.trajectory_baselines`,
+:func:`~qcorr.baselines.fluctuations.blocked_standard_error`,
+:func:`~qcorr.baselines.fluctuations.canonical_heat_capacity` and
+:func:`~qcorr.baselines.fluctuations.microcanonical_heat_capacity`.  Tables follow the
+property-table contract (``DEVELOPERS.md``) and carry their provenance in ``attrs``.
 """
