@@ -88,10 +88,17 @@ def test_microcanonical_formula_refuses_canonical_samples():
 
 
 def test_drift_between_halves():
+    """A linear rise of 10 K under 3 K of white noise is a drift; stationary series, white or with
+    slow AR(1) fluctuations (φ = 0.995, correlation time 200 samples, like a weakly coupled
+    thermostat), are not: over 40 slow series the halves lie beyond the limit at most rarely."""
     rng = np.random.default_rng(14)
+    limit = fluctuations.DRIFT_STANDARD_ERRORS
     flat = rng.normal(300, 3, size=4000)
-    assert fluctuations.half_drift(flat).standard_errors_apart < fluctuations.DRIFT_STANDARD_ERRORS
-    assert fluctuations.half_drift(flat + np.linspace(0, 10, 4000)).standard_errors_apart > 10
+    assert fluctuations.half_drift(flat).standard_errors_apart < limit
+    assert fluctuations.half_drift(flat + np.linspace(0, 10, 4000)).standard_errors_apart > limit
+    slow = [signal.lfilter([1.0], [1.0, -0.995], rng.normal(size=8000))[2000:] for _ in range(40)]
+    flagged = sum(fluctuations.half_drift(x).standard_errors_apart > limit for x in slow)
+    assert flagged <= 2
 
 
 # ------------------------------------------------------------------ energy files
