@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -162,3 +163,37 @@ def test_merge_writes_the_summaries_beside_the_table(tmp_path):
                        "--summary-html", str(first)])
     assert code != 0 and not (tmp_path / "x.csv").exists()
     assert np.isfinite(table.read_table(first)["quantum"]).all()
+
+
+# ---------------------------------------------------------------- the spectrum file
+def test_spectrum_file_units_parse_and_cf_attributes_are_set(tmp_path):
+    """Issue 15: every units attribute of a spectrum file (molecular variables included)
+    is one UDUNITS-2 spelling that pint-xarray quantifies with the CF registry; the file
+    has CF 'history' and 'source' (CF 1.11 §2.6.2) and no _FillValue on coordinates
+    (CF 1.11 §2.5.1)."""
+    import h5py
+    import MDAnalysis as mda
+    import pint_xarray  # noqa: F401 -- registers the .pint accessor
+    import xarray as xr
+    from cf_xarray.units import units as registry
+
+    from qcorr.spectra.analysis import VibrationalSpectrum
+    demo = Path(__file__).resolve().parents[1] / "resources" / "demo" / "water_flexible_298K"
+    u = mda.Universe(str(demo / "topology.pdb"), str(demo / "trajectory.trr"))
+    path = tmp_path / "water.nc"
+    VibrationalSpectrum(u, temperature=298.15, segment_ps=1.0, molecular=True,
+                        command_line="test").run(stop=1200).save(path)
+    ds = xr.open_dataset(path, engine="h5netcdf")
+    spelled = {v.attrs["units"] for v in [*ds.data_vars.values(), *ds.coords.values()]
+               if "units" in v.attrs}
+    assert spelled <= set(units.ALL_UNITS), spelled - set(units.ALL_UNITS)
+    quantified = ds.pint.quantify(unit_registry=registry)
+    assert str(quantified["wavenumber"].data.units) in ("1 / centimeter", "centimeter ** -1")
+    msd = quantified["mean_square_displacement"].pint.to("nm**2")
+    assert float(msd.max()) == pytest.approx(float(ds["mean_square_displacement"].max()) / 100)
+    assert ds.attrs["history"] == f"test (qcorr {ds.attrs['qcorr_version']})"
+    assert "trajectory.trr" in ds.attrs["source"] and "MDAnalysis" in ds.attrs["source"]
+    with h5py.File(path, "r") as raw:
+        for name in ds.coords:
+            if name in raw:
+                assert "_FillValue" not in raw[name].attrs, name

@@ -26,9 +26,15 @@ import numpy as np
 import xarray as xr
 from numpy.typing import NDArray
 
+from qcorr import units
 from qcorr.constants import speed_of_light_cm_per_s, wavenumber_to_THz
 from qcorr.spectra.molecular_file import MolecularParts, add_molecular_variables
-from qcorr.spectra.spectrum_file import FILE_KIND, FORMAT_VERSION, GROUP_TABLE
+from qcorr.spectra.spectrum_file import (
+    FILE_KIND,
+    FORMAT_VERSION,
+    GROUP_TABLE,
+    provenance_attributes,
+)
 
 __all__ = [
     "SpectrumParts",
@@ -223,7 +229,7 @@ def assemble_spectrum(
         "vacf_segments_raw": (
             ("group", "segment", "lag"),
             correlation_segments,
-            {"units": "g mol-1 Angstrom2 ps-2", "long_name": "unnormalised mass-weighted velocity autocorrelation of each segment"},
+            {"units": units.MASS_VELOCITY_SQUARED, "long_name": "unnormalised mass-weighted velocity autocorrelation of each segment"},
         ),
         "segment_first_frame": (
             ("segment",),
@@ -231,13 +237,14 @@ def assemble_spectrum(
             {"units": "1", "long_name": "trajectory frame at which the segment starts"},
         ),
     }
-    for name, (units, long_name) in GROUP_TABLE.items():
+    for name, (unit, long_name) in GROUP_TABLE.items():
         var_attrs = {"long_name": long_name}
-        if units is not None:
-            var_attrs["units"] = units
+        if unit is not None:
+            var_attrs["units"] = unit
         data[name] = (("group",), table[name], var_attrs)
     ds = xr.Dataset(data, coords=coords, attrs=dict(attrs))
     ds.attrs.setdefault("diagnostics", "[]")
+    ds.attrs.update(provenance_attributes(ds))
     return ds
 
 

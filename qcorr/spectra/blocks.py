@@ -13,6 +13,8 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import json
+import os
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -284,3 +286,36 @@ def _in_block_order(datasets: list[xr.Dataset], names: list[str], count: int):
         )
     order = np.argsort(indices)
     return [datasets[i] for i in order], [names[i] for i in order]
+
+
+def combine_spectra(block_files: Sequence[str | os.PathLike[str]]) -> xr.Dataset:
+    """Join the frame-block spectrum files of one run (``--block I-of-N``) into one spectrum.
+
+    What ``qcorr combine`` does, for a notebook: read each file (checked against the
+    spectrum-file contract), join them (:func:`combine_blocks`: same inputs, settings and
+    groups, every block once) and run the diagnostics, which are stored in the result's
+    ``diagnostics`` attribute and issued as :class:`~qcorr.errors.QcorrWarning`.
+
+    Parameters
+    ----------
+    block_files : sequence of path-like
+        The N block files, in any order.
+
+    Returns
+    -------
+    xarray.Dataset
+        The spectrum of the whole frame window, equal to a single job's up to rounding.
+
+    Raises
+    ------
+    SpectrumFileError
+        Naming the block file at fault (unreadable, another run, a block missing).
+    """
+    from qcorr.spectra.diagnostics import announce, diagnose
+    from qcorr.spectra.spectrum_file import read_spectrum
+
+    names = [os.fspath(p) for p in block_files]
+    combined = combine_blocks([read_spectrum(n) for n in names], names,
+                              "qcorr.combine_spectra(" + ", ".join(map(repr, names)) + ")")
+    announce(diagnose(combined), stacklevel=3)
+    return combined

@@ -28,6 +28,7 @@ import xarray as xr
 from numpy.typing import NDArray
 
 from qcorr import constants as C
+from qcorr import units
 from qcorr.errors import SpectrumFileError
 
 __all__ = [
@@ -172,15 +173,15 @@ def add_molecular_variables(ds: xr.Dataset, parts: MolecularParts) -> xr.Dataset
         "vdos_vibration_segments": var(g3, vib_seg, cm, "vibrational density of states of each segment"),
         "whole_molecule_count": var(g1, parts.whole_molecule_count.astype(np.int64), one, "molecules whose atoms all belong to the group (0: group not made of whole molecules)"),
         "molecule_kind_count": var(g1, parts.molecule_kind_count.astype(np.int64), one, "kinds of molecule (atom count, mass, linearity) in the group"),
-        "molecule_mass": var(g1, parts.molecule_mass, "g mol-1", "mean mass of one molecule of the group"),
-        "principal_moments": var(("group", "principal_axis"), parts.principal_moments, "g mol-1 Angstrom2", "time- and molecule-mean principal moments of inertia, ascending in every frame"),
+        "molecule_mass": var(g1, parts.molecule_mass, units.MOLAR_MASS, "mean mass of one molecule of the group"),
+        "principal_moments": var(("group", "principal_axis"), parts.principal_moments, units.MOMENT_OF_INERTIA, "time- and molecule-mean principal moments of inertia, ascending in every frame"),
         "rotational_dof_per_molecule": var(g1, parts.rotational_dof, one, "rotational degrees of freedom per molecule (0 atom, 2 linear, 3 nonlinear)"),
         "vibrational_dof_per_molecule": var(g1, parts.vibrational_dof, one, "3 n_atoms - 3 - rotational dof - constraints, per molecule"),
         "translational_kinetic_temperature": var(g1, t_trn, "K", "sum(M <V^2>)/(3 N_molecules k)"),
         "rotational_kinetic_temperature": var(g1, t_rot, "K", "sum(<w.I.w>)/(rotational dof k)"),
         "vibration_difference_integral": var(g1, residual, one, "integral of vdos - translation - rotation per group (check; ~0 for rigid molecules; NaN: group not made of whole molecules)"),
-        "self_diffusion_msd": var(g1, d_msd, "m2 s-1", "self-diffusion coefficient of the molecules' centres of mass from the mean-square displacement (Einstein relation, fit over the longer 3/4 of the lags)"),
-        "mean_square_displacement": var(("group", "displacement_lag"), msd, "Angstrom2", "mean-square displacement of the molecules' unwrapped centres of mass (NaN: group not made of whole molecules)"),
+        "self_diffusion_msd": var(g1, d_msd, units.DIFFUSION, "self-diffusion coefficient of the molecules' centres of mass from the mean-square displacement (Einstein relation, fit over the longer 3/4 of the lags)"),
+        "mean_square_displacement": var(("group", "displacement_lag"), msd, units.AREA, "mean-square displacement of the molecules' unwrapped centres of mass (NaN: group not made of whole molecules)"),
         "displacement_origin_count": var(("displacement_lag",), np.asarray(parts.msd_origins, dtype=np.int64), one, "time origins averaged at each lag of mean_square_displacement"),
     }
     out = ds.assign_coords(displacement_lag=(("displacement_lag",), np.asarray(parts.msd_lag_ps, dtype=np.float64), {"units": "ps", "long_name": "time lag of the mean-square displacement"}))

@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from qcorr import units
 from qcorr.errors import SpectrumFileError
 from qcorr.safe_write import atomic_path
 
@@ -210,13 +211,37 @@ def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
     """
     check_spectrum(ds, "<dataset to be written to " + os.fspath(path) + ">")
     path = Path(path)
-    encoding = {}
+    # CF conventions 1.11 §2.5.1: coordinates hold no missing values, so no _FillValue
+    encoding: dict[str, dict] = {name: {"_FillValue": None} for name in ds.coords}
     for name in ("vdos_segments", "vacf_segments_raw", "vdos"):
         if name in ds.variables:
             encoding[name] = {"zlib": True, "complevel": 4}
     with atomic_path(path) as tmp:
         ds.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
     return path
+
+
+def provenance_attributes(ds: xr.Dataset) -> dict[str, str]:
+    """The CF global attributes ``history`` and ``source`` of a spectrum (CF 1.11 §2.6.2).
+
+    Set by :func:`qcorr.spectra.assemble.assemble_spectrum` (so a spectrum in memory and
+    its file carry the same attributes).  ``history`` is the command or call that made the file with the qcorr version (no
+    wall-clock time, so the file stays byte-reproducible); ``source`` names the input
+    files and the reader.
+    """
+    try:
+        names = [str(record.get("name", "?")) for record in json.loads(ds.attrs.get("input_files", "[]"))]
+    except (TypeError, ValueError, AttributeError):
+        names = []
+    return {
+        "history": f"{ds.attrs.get('command_line', '')} (qcorr {ds.attrs.get('qcorr_version', '?')})",
+        "source": (
+            "classical molecular dynamics trajectory"
+            + (f" ({', '.join(names)})" if names else "")
+            + f", read with MDAnalysis {ds.attrs.get('mdanalysis_version', '?')}; mass-weighted "
+            "velocity spectrum by qcorr"
+        ),
+    }
 
 
 def json_attribute(ds: xr.Dataset, name: str) -> object:
@@ -262,7 +287,7 @@ GROUP_TABLE: dict[str, tuple[str | None, str]] = {
     "constraint_count": ("1", "holonomic constraints subtracted"),
     "atom_count": ("1", "atoms in the group (virtual sites excluded)"),
     "molecule_count": ("1", "residues (molecules) in the group"),
-    "group_mass": ("g mol-1", "total mass of the group's atoms"),
+    "group_mass": (units.MOLAR_MASS, "total mass of the group's atoms"),
     "selection": (None, "MDAnalysis selection string"),
 }
 
