@@ -20,6 +20,9 @@ The public names (imported on first use, so ``import qcorr`` stays light):
   :func:`write_spectrum`, :func:`combine_spectra`;
 * thermodynamics: :func:`harmonic_properties` (Berens et al. weighting functions),
   :func:`two_phase_properties` and :func:`two_phase_split_spectra` (2PT);
+* corrected observables (classical baselines measured from the runs + corrections):
+  :func:`read_energy_file`, :func:`corrected_properties` (with :class:`Reference` values),
+  :func:`temperature_series`, :func:`series_figure`, :func:`vaporisation_enthalpy`;
 * outputs: :func:`read_table`, :func:`write_table`, :func:`merge_tables`,
   :func:`format_table`, :func:`summary_markdown`, :func:`summary_html`,
   :func:`spectrum_figure`, :func:`cumulative_figure`, :func:`cumulative_corrections`,
@@ -63,6 +66,12 @@ _EXPORTS = {
     "cumulative_figure": "qcorr.outputs.figures",
     "cumulative_corrections": "qcorr.outputs.figures",
     "save_figure": "qcorr.outputs.figures",
+    "read_energy_file": "qcorr.baselines.energy_files",
+    "corrected_properties": "qcorr.baselines.corrected",
+    "Reference": "qcorr.baselines.corrected",
+    "temperature_series": "qcorr.baselines.temperature_series",
+    "series_figure": "qcorr.baselines.temperature_series",
+    "vaporisation_enthalpy": "qcorr.baselines.vaporisation",
     "QcorrError": "qcorr.errors",
     "QcorrWarning": "qcorr.errors",
 }

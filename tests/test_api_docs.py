@@ -73,3 +73,7 @@ def test_every_block_of_the_api_page_runs(tmp_path):
         difference = float(text.strip().split()[-1])
         assert difference < 1e-12
     assert outputs[5].startswith("refused: ") and outputs[5].count("\n") == 1
+    # block 7 (issue 13): corrected energy and free energy of the demo water from its energy
+    # file; no heat capacity (the 3-ps run sampled no canonical fluctuations)
+    assert "energy" in outputs[6] and "helmholtz_free_energy" in outputs[6]
+    assert "heat_capacity" not in outputs[6]

@@ -363,9 +363,15 @@ def test_merged_table_equals_the_python_api(demo_run):
         extra = [float(t) for t in row["temperatures_K"].split(";") if t.strip()]
         tables.append(qcorr.harmonic_properties(spectrum, system=row["system"],
                                                 temperatures_K=[temperature, *extra]))
+        two_phase = None
         if liquid:
-            tables.append(qcorr.two_phase_properties(
-                spectrum, system=row["system"], symmetry_number=int(row["symmetry_number"])))
+            two_phase = qcorr.two_phase_properties(
+                spectrum, system=row["system"], symmetry_number=int(row["symmetry_number"]))
+            tables.append(two_phase)
+        if row.get("ensemble", ""):  # issue 13: corrected observables from the run's energy file
+            energy = qcorr.read_energy_file(copy / row["energy_file"], row["energy_format"])
+            tables.append(qcorr.corrected_properties(spectrum, ensemble=row["ensemble"], system=row["system"],
+                                                     energy_series=energy, two_phase_table=two_phase))
     api = qcorr.merge_tables(tables)
     assert_tables_equal(workflow_table, api.astype({"note": str}), rtol=1e-9)
 

@@ -39,7 +39,6 @@ import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -135,16 +134,18 @@ def merged_baselines(*sets: BaselineSet) -> BaselineSet:
     return out
 
 
-def two_phase_entropy(path: str | os.PathLike[str], *, system: str, group: str,
+def two_phase_entropy(path: str | os.PathLike[str] | pd.DataFrame, *, system: str, group: str,
                       temperature_K: float) -> TwoPhaseEntropy:
-    """The classical 2PT entropy and free-energy correction of *group* from a ``qcorr liquid`` table.
+    """The classical 2PT entropy and free-energy correction of *group* from a ``qcorr liquid`` table
+    (its file, or the DataFrame of :func:`qcorr.thermo.twophase_table.two_phase_properties`).
 
     Raises
     ------
     ConfigError
         Naming the table, if it lacks the group's 2PT entropy or free energy at the temperature.
     """
-    frame = read_table(path)
+    frame = path if isinstance(path, pd.DataFrame) else read_table(path)
+    path = "2PT table (in memory)" if isinstance(path, pd.DataFrame) else path
     rows = frame[(frame["method"] == "2pt") & (frame["group"] == group)
                  & (frame["basis"] == "per_mole_molecules")
                  & np.isclose(frame["temperature_K"], temperature_K, rtol=1e-9)]
@@ -174,8 +175,8 @@ def _free_energy_baselines(base: BaselineSet, two_phase: TwoPhaseEntropy | None,
         value = m.value - ts
         se = math.hypot(m.standard_error, temperature_K * two_phase.entropy_se / 1000.0)
         note = (f"{'<E>' if mean == 'energy' else '<H>'} - T S, S = {two_phase.entropy:.6g} J/(mol K) "
-                f"by 2PT with classical weights (table {Path(two_phase.table).name}); correction: that "
-                "table's Delta A")
+                "by 2PT with classical weights (the group's 2pt entropy row); correction: the 2pt "
+                "Delta A")
         out[free] = (Baseline(free, value, se, m.source, note), two_phase.free_energy_correction,
                      two_phase.free_energy_correction_se)
     return out
@@ -326,7 +327,7 @@ def corrected_properties(
     energy_series: EnergySeries | None = None,
     pressure_bar: float | None = None,
     classical_values: Mapping[str, float] | None = None,
-    two_phase_table: str | os.PathLike[str] | None = None,
+    two_phase_table: str | os.PathLike[str] | pd.DataFrame | None = None,
     references: Mapping[str, Reference] | None = None,
     source: str | os.PathLike[str] | None = None,
 ) -> pd.DataFrame:
@@ -355,9 +356,10 @@ def corrected_properties(
     classical_values : mapping, optional
         ``{property: value}`` typed in by the user, per mole of molecules in the row's molar
         unit (J/(mol K), kJ/mol), at the spectrum's temperature; they take precedence.
-    two_phase_table : path-like, optional
-        The ``qcorr liquid`` table of this spectrum: its classical 2PT entropy makes the
-        free energies A = ⟨E⟩ − TS and G = ⟨H⟩ − TS.
+    two_phase_table : path-like or pandas.DataFrame, optional
+        The ``qcorr liquid`` table of this spectrum (or the DataFrame of
+        :func:`~qcorr.thermo.twophase_table.two_phase_properties`): its classical 2PT entropy
+        makes the free energies A = ⟨E⟩ − TS and G = ⟨H⟩ − TS.
     references : mapping, optional
         ``{property: Reference}``: reference values with their sources (reference and
         deviation columns).
@@ -423,7 +425,8 @@ def corrected_properties(
             "samples": energy_series.sample_count, "columns": energy_series.columns},
         "options": {"system": system, "group": group, "ensemble": ensemble, "pressure_bar": pressure_bar,
                     "classical_values": dict(classical_values or {}),
-                    "two_phase_table": None if two_phase_table is None else os.fspath(two_phase_table),
+                    "two_phase_table": None if two_phase_table is None else (
+                        "in memory" if isinstance(two_phase_table, pd.DataFrame) else os.fspath(two_phase_table)),
                     "references": {p: r.as_json() for p, r in (references or {}).items()}},
         "baselines": baselines.diagnostics,
         "missing": missing,
