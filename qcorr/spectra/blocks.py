@@ -24,6 +24,7 @@ from qcorr.spectra.molecular_file import (
     combine_molecular_parts,
     join_molecular_parts,
 )
+from qcorr.spectra.position_noise import NoiseParts
 from qcorr.spectra.spectrum_file import (
     COMBINE_ATTRIBUTES,
     COMBINE_VARIABLES,
@@ -72,6 +73,12 @@ def join_spectrum_parts(parts: list[SpectrumParts]) -> SpectrumParts:
     if any(m is None for m in molecular) and not all(m is None for m in molecular):
         raise SpectrumFileError("some frame blocks have molecular parts and others not; make every block "
                                 "with the same options (--molecular)")
+    noise = [p.noise for p in parts]
+    if any((m is None) != (noise[0] is None) for m in noise) or (noise[0] is not None and not all(
+            np.allclose(m.floor, noise[0].floor, rtol=1e-9, atol=0.0) and m.step_A == noise[0].step_A
+            for m in noise)):
+        raise SpectrumFileError("frame blocks subtracted different rounding noise of positions; make every "
+                                "block with the same options (--velocities-from, --position-precision)")
     return SpectrumParts(
         raw_segments=np.concatenate([p.raw_segments for p in parts], axis=1),
         correlation_segments=np.concatenate([p.correlation_segments for p in parts], axis=1),
@@ -83,6 +90,7 @@ def join_spectrum_parts(parts: list[SpectrumParts]) -> SpectrumParts:
         box_volume_sum_A3=float(sum(p.box_volume_sum_A3 for p in parts)),
         com_mv2_sum=float(sum(p.com_mv2_sum for p in parts)),
         molecular=None if molecular[0] is None else join_molecular_parts(molecular),
+        noise=noise[0],
     )
 
 
@@ -94,6 +102,13 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
     dataset's :class:`~qcorr.spectra.molecular_file.MolecularParts` (None: none).
     """
     frames = int(ds.attrs["statistics_frames"])
+    noise = None
+    if "vdos_position_noise" in ds.variables:
+        scale = (np.asarray(ds["raw_integral"].values, dtype=float)
+                 / np.asarray(ds["degrees_of_freedom"].values, dtype=float))
+        noise = NoiseParts(np.asarray(ds["vdos_position_noise"].values, dtype=float) * scale[:, None],
+                           np.asarray(ds["position_noise_model_error"].values, dtype=float),
+                           float(ds.attrs.get("position_precision_A", 0.0)))
     return SpectrumParts(
         raw_segments=raw_segments_of(ds),
         correlation_segments=np.asarray(ds["vacf_segments_raw"].values, dtype=float),
@@ -105,6 +120,7 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
         box_volume_sum_A3=float(ds.attrs["mean_box_volume_A3"]) * frames,
         com_mv2_sum=float(ds.attrs["centre_of_mass_mv2_u_A2_per_ps2"]) * frames,
         molecular=molecular,
+        noise=noise,
     )
 
 
@@ -246,9 +262,10 @@ def _check_blocks(datasets: list[xr.Dataset], names: list[str]) -> int:
         "temperature_K", "timestep_ps", "frame_start", "frame_stop", "frame_step",
         "segment_frames", "segment_overlap", "taper", "velocity_source",
         "finite_difference_correction", "block_count", "segment_count_window",
+        "position_precision_A", "repeated_frames_dropped",
     )
     for attr in same_attrs:
-        _same([ds.attrs[attr] for ds in datasets], f"attribute '{attr}'", names)
+        _same([ds.attrs.get(attr) for ds in datasets], f"attribute '{attr}'", names)
     for var in ("group", "wavenumber", "lag", *GROUP_TABLE):
         _same([ds[var].values for ds in datasets], f"'{var}'", names)
     return int(datasets[0].attrs["block_count"])
