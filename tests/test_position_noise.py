@@ -34,7 +34,7 @@ from qcorr.errors import ConfigError
 from qcorr.spectra.analysis import VibrationalSpectrum
 from qcorr.spectra.position_noise import PositionNoise, noise_masses, rounding_correlation
 from qcorr.spectra.segments import SpectrumSettings
-from qcorr.spectra.spectrum_file import raw_segments_of
+from qcorr.spectra.spectrum_file import raw_segments_of, read_spectrum
 
 STEP_A = 0.01
 #: kT/m in (Å/ps)² per K and u (CODATA via scipy)
@@ -190,3 +190,40 @@ def test_stated_precision_must_agree_with_the_positions_and_need_positions():
         VibrationalSpectrum(rounded, 300.0, position_precision=0.01)
     with pytest.raises(ConfigError, match="--molecular with positions .* rounded to 0.01"):
         VibrationalSpectrum(rounded, 300.0, velocities_from="positions", molecular=True)
+
+
+def _assert_same(a, b, rtol=1e-12):
+    """Every data variable equal to *rtol* of its largest value (as tests/test_spectrum_api.py)."""
+    assert set(a.data_vars) == set(b.data_vars)
+    for name in a.data_vars:
+        x, y = a[name].values, b[name].values
+        if x.dtype.kind == "f":
+            scale = float(np.max(np.abs(x))) if x.size else 0.0
+            np.testing.assert_allclose(y, x, rtol=rtol, atol=rtol * scale, err_msg=name)
+        else:
+            np.testing.assert_array_equal(y, x, err_msg=name)
+
+
+def test_noise_subtraction_keeps_blocks_and_parallel_parts_exact(tmp_path):
+    # the subtracted floor is the same for every segment, so frame blocks joined by combine and
+    # parts joined by the process backend must equal the single serial run to 1e-12
+    from qcorr.spectra.blocks import combine_blocks
+    from qcorr.spectra.spectrum_file import write_spectrum
+
+    u, _ = _oscillating_universe(n_atoms=60, n_frames=1200, rounded=True)
+    serial = _spectrum(u)
+    assert serial.attrs["position_precision_A"] == pytest.approx(STEP_A)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        parts = VibrationalSpectrum(u, 300.0, velocities_from="positions", segment_ps=1.0).run(
+            backend="multiprocessing", n_workers=2, n_parts=3).results.spectrum
+    _assert_same(serial, parts)
+    names, blocks = [], []
+    for i in (1, 2, 3):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            s = VibrationalSpectrum(u, 300.0, velocities_from="positions", segment_ps=1.0, block=(i, 3))
+            names.append(str(write_spectrum(s.run().results.spectrum, tmp_path / f"b{i}.nc")))
+    blocks = [read_spectrum(n) for n in names]
+    joined = combine_blocks(blocks, names, "combine")
+    _assert_same(serial, joined)
