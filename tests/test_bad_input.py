@@ -78,6 +78,11 @@ CASES = {
     "unknown_mass_type": (lambda f: _base(f) + ["--mass", "ZZ=12"], ["--mass ZZ", "no atom has type"]),
     "ambiguous_total_constraints": (lambda f: _base(f) + ["--group", "a=resid 1 2", "--group", "b=resid 2 3", "--constraints", "a=1"], ["--constraints total=N"]),
     "bad_block": (lambda f: _base(f) + ["--block", "3-of-2"], ["--block", "between 1 and N"]),
+    "negative_frame_spacing": (lambda f: _base(f) + ["--frame-spacing", "-0.002"], ["--frame-spacing -0.002", "positive"]),
+    "precision_without_positions": (lambda f: _base(f) + ["--position-precision", "0.01"],
+                                    ["--position-precision", "only with --velocities-from positions"]),
+    "reader_dt_over_stamps": (lambda f: _base(f) + ["--reader-option", "dt=1.0"],
+                              ["--reader-option dt=1", "good.trr", "0.002 ps apart"]),
 }
 
 

@@ -190,7 +190,7 @@ def test_time_stamps_that_do_not_increase(tmp_path):
     scn = synthetic.diatomic_oscillators([5e12], n_frames=10, timestep_ps=0.002, temperature_K=300)
     flat = dataclasses.replace(scn, times_ps=np.zeros(10))
     opened = uni.open_trajectory(synthetic.write_gro(flat, tmp_path / "d.gro"), [synthetic.write_trr(flat, tmp_path / "d.trr")])
-    with pytest.raises(SamplingError, match=r"'.*d\.trr' do not increase.*--reader-option dt=PS"):
+    with pytest.raises(SamplingError, match=r"'.*d\.trr' do not increase.*--frame-spacing PS"):
         ta.frame_window(opened)
 
 

@@ -46,11 +46,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                          "(.lammpstrj/.lammpsdump/.dump are read as LAMMPSDUMP)")
     io.add_argument("--reader-option", action="append", default=[], metavar="KEY=VALUE",
                     help="keyword passed to MDAnalysis.Universe (repeatable); numbers and "
-                         "true/false are converted; for LAMMPS dumps give dt=MD time step in "
-                         "the LAMMPS time unit (fs for real, ps for metal)")
+                         "true/false are converted; for LAMMPS dumps give dt=MD time step (not the "
+                         "dump interval) in the LAMMPS time unit (fs for real, ps for metal)")
     io.add_argument("--lammps-units", choices=("real", "metal"), default=None,
                     help="LAMMPS unit style of a dump trajectory: real = A, fs, A/fs; "
                          "metal = A, ps, A/ps (MDAnalysis does not convert dump units)")
+    io.add_argument("--frame-spacing", type=float, default=None, metavar="PS", help="time between saved frames "
+                    "in ps; required for formats without time stamps (DCD, XYZ, ...), else checked against them")
 
     frames = parser.add_argument_group("frames")
     frames.add_argument("--start", type=int, default=None, metavar="N",
@@ -62,11 +64,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     frames.add_argument("--velocities-from", choices=("stored", "positions"), default="stored",
                         help="stored: velocities saved in the trajectory (A/ps after MDAnalysis' "
                              "unit conversion); positions: forward differences of positions, "
-                             "spectrum divided by the difference's power transfer sinc^2(pi nu dt)")
+                             "spectrum divided by the difference's power transfer sinc^2(pi nu dt) "
+                             "and the expected rounding noise of the positions subtracted")
+    frames.add_argument("--position-precision", type=float, default=None, metavar="ANGSTROM", help="rounding "
+                        "step of stored positions in A (read from XTC files, else detected or 0)")
 
     system = parser.add_argument_group("system")
     system.add_argument("--temperature", type=float, required=True, metavar="K",
                         help="temperature of the simulation in kelvin, used in 2/kT")
+    system.add_argument("--allow-temperature-mismatch", action="store_true", help="compute even if a group's "
+                        "kinetic temperature differs from --temperature by more than a factor of 2 (K/K)")
     system.add_argument("--group", action="append", default=[], metavar="NAME=SELECTION",
                         help="named atom group from an MDAnalysis selection string (repeatable); "
                              "the group 'total' (all atoms with mass) is always added")
@@ -122,7 +129,8 @@ def run(args: argparse.Namespace) -> int:
     block = parse_block(args.block)
     check_settings(temperature=args.temperature, segment_ps=args.segment_ps, overlap=args.overlap,
                    taper=args.taper, velocities_from=args.velocities_from, molecules=args.molecules,
-                   block=block, fft_threads=args.threads)
+                   block=block, fft_threads=args.threads, position_precision=args.position_precision,
+                   frame_spacing_ps=args.frame_spacing)
     for name in [args.topology, *args.trajectory]:
         if Path(name).resolve() == Path(args.output).resolve():
             raise ConfigError(f"--output {args.output} is also an input file; choose another name")
@@ -135,8 +143,8 @@ def run(args: argparse.Namespace) -> int:
     per_molecule = parse_key_values(args.constraints_per_molecule, "--constraints-per-molecule")
     opened = open_trajectory(args.topology, args.trajectory, topology_format=args.topology_format,
                              trajectory_format=args.trajectory_format, reader_options=reader_options,
-                             lammps_units=args.lammps_units)
-    frames = len(range(*slice(args.start, args.stop, max(1, args.step)).indices(opened.universe.trajectory.n_frames)))
+                             lammps_units=args.lammps_units, frame_spacing_ps=args.frame_spacing)
+    frames = len(range(*slice(args.start, args.stop, max(1, args.step)).indices(opened.n_frames)))
     atom_frames = opened.universe.atoms.n_atoms * frames // block[1]
     processes = args.threads if args.threads >= 2 and atom_frames >= PROCESS_MIN_ATOM_FRAMES else 1
     spectrum = VibrationalSpectrum(
@@ -145,7 +153,9 @@ def run(args: argparse.Namespace) -> int:
         exclude_massless=args.exclude_massless, velocities_from=args.velocities_from,
         segment_ps=args.segment_ps, overlap=args.overlap, taper=args.taper,
         molecular=args.molecular, molecules=args.molecules, lammps_units=args.lammps_units,
-        block=block, fft_threads=1 if processes > 1 else args.threads, input_files=opened.files,
+        position_precision=args.position_precision, frame_spacing_ps=args.frame_spacing,
+        allow_temperature_mismatch=args.allow_temperature_mismatch, block=block,
+        fft_threads=1 if processes > 1 else args.threads, input_files=opened.files,
         reader_options=reader_options, command_line=getattr(args, "command_line", "qcorr spectrum"),
         progress=args.progress)
     if processes > 1:

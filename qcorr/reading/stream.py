@@ -30,6 +30,7 @@ __all__ = [
     "VelocitySampler",
     "consecutive_frames",
     "guarded_frames",
+    "minimum_image",
     "stream_velocities",
     "window_frames",
 ]
@@ -72,7 +73,8 @@ class VelocitySampler:
     the forward difference (x_{j+1} − x_j)/Δt of window frames j and j+1, each
     displacement first reduced to its minimum image (so positions need not be
     unwrapped; valid while no atom moves more than half a box edge between frames).
-    Every interval between consecutive frames is checked against the window's time step.
+    Every interval between consecutive time stamps is checked against the window's time step
+    (formats without stamps use the stated frame spacing and have none to check).
 
     Parameters
     ----------
@@ -118,6 +120,7 @@ class VelocitySampler:
         self._total_mass = float(channels.masses.sum())
         self._all_atoms = len(self._idx) == opened.universe.atoms.n_atoms  # no fancy indexing needed
         self._time_factor = opened.lammps_time_factor
+        self._stamped = opened.stamped
         self._velocity_factor = opened.lammps_velocity_factor
         self._previous_time: float | None = None
         self._previous_positions: NDArray[np.float64] | None = None
@@ -148,11 +151,12 @@ class VelocitySampler:
             An interval unlike the window's time step (names the frame and both intervals).
         """
         opened, window, idx = self.opened, self.window, self._idx
-        time_ps = float(ts.time) * self._time_factor
-        if self._previous_time is not None:
-            check_one_interval(opened, window, position, time_ps - self._previous_time,
-                               window.timestep_ps, time_ps)
-        self._previous_time = time_ps
+        if self._stamped:
+            time_ps = float(ts.time) * self._time_factor
+            if self._previous_time is not None:
+                check_one_interval(opened, window, position, time_ps - self._previous_time,
+                                   window.timestep_ps, time_ps)
+            self._previous_time = time_ps
         masses, total_mass = self._masses, self._total_mass
         if self.source == "stored":
             if not ts.has_velocities:
@@ -187,17 +191,8 @@ class VelocitySampler:
                 self._previous_positions = x
                 self._previous_box = ts.dimensions
                 return None
-            d = x - self._previous_positions
             current_box = ts.dimensions
-            if current_box is not None and np.all(np.asarray(current_box[:3]) > 0):
-                # only atoms that crossed a boundary (a component beyond a quarter of the
-                # shortest edge) get the minimum image; minimize_vectors works in float32,
-                # so the others keep their float64 displacement
-                jumped = np.any(np.abs(d) > 0.25 * float(np.min(current_box[:3])), axis=1)
-                if jumped.any():
-                    from MDAnalysis.lib.distances import minimize_vectors
-
-                    d[jumped] = minimize_vectors(d[jumped].astype(np.float32), current_box)
+            d = minimum_image(x - self._previous_positions, current_box)
             self._previous_positions = x
             v = d / window.timestep_ps
             sample = position - 1  # the difference of frames j, j+1 is sample j
@@ -235,6 +230,24 @@ class VelocitySampler:
             box = np.asarray(dims)
             cache[:] = [key, _box_volume(box) if np.all(box[:3] > 0) else 0.0]
         statistics.box_volume_sum_A3 += cache[1]
+
+
+def minimum_image(d: NDArray[np.float64], box) -> NDArray[np.float64]:
+    """Displacements *d* (n, 3), Å, reduced to their minimum image in *box* (in place; returned).
+
+    Only atoms that crossed a boundary (a component beyond a quarter of the shortest
+    edge) are reduced; :func:`MDAnalysis.lib.distances.minimize_vectors` works in
+    float32, so the others keep their float64 displacement.  No box (or a zero one):
+    *d* unchanged.
+    """
+    if box is None or not np.all(np.asarray(box[:3]) > 0):
+        return d
+    jumped = np.any(np.abs(d) > 0.25 * float(np.min(box[:3])), axis=1)
+    if jumped.any():
+        from MDAnalysis.lib.distances import minimize_vectors
+
+        d[jumped] = minimize_vectors(d[jumped].astype(np.float32), box)
+    return d
 
 
 def stream_velocities(
@@ -298,16 +311,11 @@ def window_frames(opened: OpenedTrajectory, window: FrameWindow, first: int, sto
     """Time steps of window positions ``first .. stop-1``, read in order.
 
     Consecutive trajectory frames (step 1) are read with one seek and then ``next()``
-    (:func:`consecutive_frames`); a reader failure becomes a TrajectoryError naming the
+    (:func:`consecutive_frames`, via :meth:`OpenedTrajectory.read_frames`, which also
+    skips repeated restart frames); a reader failure becomes a TrajectoryError naming the
     frame (:func:`guarded_frames`).
     """
-    trajectory = opened.universe.trajectory
-    first_frame = window.frame(first)
-    read_stop = window.start + stop * window.step
-    if window.step == 1:
-        frames = consecutive_frames(trajectory, first_frame, read_stop)
-    else:
-        frames = trajectory[first_frame:read_stop : window.step]
+    frames = opened.read_frames(window.frame(first), window.start + stop * window.step, window.step)
     return guarded_frames(frames, opened, window, first)
 
 

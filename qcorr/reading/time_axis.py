@@ -2,7 +2,9 @@
 
 The time step comes from the frames' time stamps, never from ``trajectory.dt`` (which
 several MDAnalysis readers fill with a fallback); unevenly spaced or missing frames
-raise :class:`~qcorr.errors.SamplingError` naming the first bad frame.  Times are in ps
+raise :class:`~qcorr.errors.SamplingError` naming the first bad frame.  Formats without
+trustworthy stamps use the stated frame spacing (:mod:`qcorr.reading.time_source`);
+frames are numbered without repeated restart frames (:mod:`qcorr.reading.restarts`).  Times are in ps
 (after the LAMMPS unit factor of :class:`~qcorr.reading.universe.OpenedTrajectory`).
 """
 
@@ -13,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from qcorr.errors import ConfigError, SamplingError
+from qcorr.reading.time_source import check_frame_spacing
 from qcorr.reading.universe import OpenedTrajectory
 
 __all__ = [
@@ -79,8 +82,7 @@ def frame_window(
         Fewer than two frames, non-increasing time stamps, or a span that disagrees with
         the first interval (the frames are then scanned to name the first bad one).
     """
-    trajectory = opened.universe.trajectory
-    n_total = trajectory.n_frames
+    n_total = opened.n_frames
     step = 1 if step is None else int(step)
     if step <= 0:
         raise ConfigError(f"--step {step}: the frame step must be a positive integer")
@@ -90,19 +92,19 @@ def frame_window(
             f"the frame window (--start {start} --stop {stop} --step {step}) of {opened.label} "
             f"holds {len(rng)} of its {n_total} frames; at least two are needed"
         )
-    factor = opened.lammps_time_factor
-    t0 = float(trajectory[rng[0]].time) * factor
-    t1 = float(trajectory[rng[1]].time) * factor
-    t_last = float(trajectory[rng[-1]].time) * factor
     n = len(rng)
+    if not opened.stamped:  # no trustworthy stamps: the stated spacing is the time axis
+        dt = float(opened.frame_spacing_ps) * rng.step
+        return FrameWindow(rng.start, rng.stop, rng.step, dt, rng.start * float(opened.frame_spacing_ps))
+    t0, t1, t_last = (_time_of(opened, frame) for frame in (rng[0], rng[1], rng[-1]))
     dt = (t_last - t0) / (n - 1)
     window = FrameWindow(rng.start, rng.stop, rng.step, dt, t0)
     tol = INTERVAL_TOLERANCE * abs(dt) + _float32_spacing(t_last)
     if not dt > 0:
         raise SamplingError(
             f"the time stamps of {opened.label} do not increase (frame {rng[0]}: {t0:g} ps, frame "
-            f"{rng[-1]}: {t_last:g} ps); the file may carry no times: give the frame spacing with "
-            "--reader-option dt=PS if the reader accepts it"
+            f"{rng[-1]}: {t_last:g} ps); the file may carry no times: give the time between frames "
+            "with --frame-spacing PS"
         )
     if abs((t1 - t0) - dt) > tol:
         # find the first bad frame for a precise message (error path only)
@@ -111,15 +113,21 @@ def frame_window(
             f"the time stamps of {opened.label} are not evenly spaced: frames "
             f"{rng[0]}..{rng[-1]} span {t_last - t0:g} ps, but the first interval is {t1 - t0:g} ps"
         )
+    check_frame_spacing(opened, dt, rng.step)
     return window
+
+
+def _time_of(opened: OpenedTrajectory, frame: int) -> float:
+    """Time stamp (ps) of *frame* (numbered without dropped repeats)."""
+    trajectory = opened.universe.trajectory
+    return opened.time_ps(trajectory[opened.physical_frame(frame)], frame)
 
 
 def check_intervals(opened: OpenedTrajectory, window: FrameWindow, reference_ps: float) -> None:
     """Scan the window's time stamps; raise at the first interval unlike *reference_ps*."""
-    factor = opened.lammps_time_factor
     previous = None
-    for i, ts in enumerate(opened.universe.trajectory[window.start : window.stop : window.step]):
-        t = float(ts.time) * factor
+    for i, ts in enumerate(opened.read_frames(window.start, window.stop, window.step)):
+        t = opened.time_ps(ts, window.frame(i))
         if previous is not None:
             check_one_interval(opened, window, i, t - previous, reference_ps, t)
         previous = t

@@ -29,6 +29,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
+
 from qcorr.constants import femtosecond_s, picosecond_s
 from qcorr.errors import ConfigError, TrajectoryError
 
@@ -72,6 +74,20 @@ class OpenedTrajectory:
         The trajectory is a LAMMPS dump (its units were converted by qcorr).
     lammps_units : str
         LAMMPS unit style stated by the user (``""`` when not given).
+    stamped : bool
+        The frames' time stamps give the time axis (False: the format stores no
+        trustworthy times and ``frame_spacing_ps`` does; :mod:`qcorr.reading.time_source`).
+    frame_spacing_ps : float or None
+        Time between consecutive frames stated by the user (``--frame-spacing``), ps:
+        the time axis when not *stamped*, otherwise checked against the stamps.
+    time_axis_note : str
+        Where the time axis comes from (recorded in the spectrum file).
+    dropped_frames : tuple of int
+        Reader frame indices of restart frames that repeat the previous file's frames
+        exactly and are left out (:mod:`qcorr.reading.restarts`); every other frame
+        number qcorr uses counts frames without them.
+    dropped_records : tuple of dict
+        The same frames as ``{"file", "frame_in_file", "time_ps"}`` for the spectrum file.
     """
 
     universe: object
@@ -80,6 +96,52 @@ class OpenedTrajectory:
     lammps_velocity_factor: float = 1.0
     is_lammps_dump: bool = False
     lammps_units: str = ""
+    stamped: bool = True
+    frame_spacing_ps: float | None = None
+    time_axis_note: str = "time stamps of the trajectory file(s)"
+    dropped_frames: tuple[int, ...] = ()
+    dropped_records: tuple[dict, ...] = ()
+
+    @property
+    def n_frames(self) -> int:
+        """Frames of the trajectory as qcorr reads it (repeated restart frames left out)."""
+        return self.universe.trajectory.n_frames - len(self.dropped_frames)
+
+    def physical_frame(self, frame: int) -> int:
+        """Reader frame index of *frame* (frames numbered without the dropped repeats)."""
+        if not self.dropped_frames:
+            return int(frame)
+        dropped = np.asarray(self.dropped_frames, dtype=np.int64)
+        shift = dropped - np.arange(len(dropped))
+        return int(frame) + int(np.searchsorted(shift, int(frame), side="right"))
+
+    def read_frames(self, first: int, stop: int, step: int = 1):
+        """Time steps of frames ``first, first+step, ... < stop`` (numbered without dropped repeats).
+
+        Consecutive frames are read with one seek and then ``next()``; dropped frames are
+        read past.  Raises EOFError if the reader ends early.
+        """
+        from qcorr.reading.stream import consecutive_frames
+
+        trajectory = self.universe.trajectory
+        if stop <= first:
+            return iter(())
+        if not self.dropped_frames:
+            if step == 1:
+                return consecutive_frames(trajectory, first, stop)
+            return iter(trajectory[first:stop:step])
+        wanted = [self.physical_frame(f) for f in range(first, stop, step)]
+        if step == 1:
+            keep = set(wanted)
+            return (ts for ts in consecutive_frames(trajectory, wanted[0], wanted[-1] + 1)
+                    if ts.frame in keep)
+        return iter(trajectory[wanted])
+
+    def time_ps(self, ts, frame: int) -> float:
+        """Time of *ts* in ps: its stamp (× the LAMMPS factor), or frame × the explicit spacing."""
+        if self.stamped:
+            return float(ts.time) * self.lammps_time_factor
+        return int(frame) * float(self.frame_spacing_ps)
 
     @property
     def label(self) -> str:
@@ -92,11 +154,14 @@ class OpenedTrajectory:
         return f"'{name}'" + (f" + {extra} more files" if extra > 0 else "")
 
     def where(self, frame: int) -> str:
-        """``frame F of 'file'``; for several files also the frame number inside its own file."""
+        """``frame F of 'file'``; for several files also the frame number inside its own file.
+
+        *frame* is numbered without dropped repeats; the frame inside its file is the reader's.
+        """
         readers = getattr(self.universe.trajectory, "readers", None)
         if not readers or len(readers) < 2:
             return f"frame {frame} of {self.label}"
-        local = frame
+        local = self.physical_frame(frame)
         for reader in readers:
             if local < reader.n_frames:
                 return f"frame {frame} (frame {local} of '{reader.filename}')"
@@ -153,8 +218,9 @@ def universe_files(universe) -> list[Path]:
 
 
 def wrap_universe(universe, *, lammps_units: str | None = None,
-                  files: Sequence[str | os.PathLike[str]] | None = None) -> OpenedTrajectory:
-    """Describe an open Universe for qcorr: its files and the unit factors of a LAMMPS dump.
+                  files: Sequence[str | os.PathLike[str]] | None = None,
+                  frame_spacing_ps: float | None = None) -> OpenedTrajectory:
+    """Describe an open Universe for qcorr: files, LAMMPS unit factors, time axis, restart repeats.
 
     Parameters
     ----------
@@ -163,14 +229,22 @@ def wrap_universe(universe, *, lammps_units: str | None = None,
         LAMMPS unit style of a dump trajectory (required for dumps, ignored otherwise).
     files : sequence of path, optional
         Input files (topology first); default :func:`universe_files`.
+    frame_spacing_ps : float, optional
+        Time between consecutive frames, ps (``--frame-spacing``); required for formats
+        without trustworthy time stamps (:func:`qcorr.reading.time_source.resolve_time_axis`).
 
     Raises
     ------
     ConfigError
-        *lammps_units* is not one of :data:`LAMMPS_UNIT_STYLES`.
+        *lammps_units* is not one of :data:`LAMMPS_UNIT_STYLES`; a bad or disagreeing
+        frame spacing or reader ``dt``.
     TrajectoryError
-        The trajectory is a LAMMPS dump and *lammps_units* is not given.
+        The trajectory is a LAMMPS dump and *lammps_units* is not given; a format
+        without time stamps and no frame spacing; files that overlap with different frames.
     """
+    from qcorr.reading.restarts import repeated_boundary_frames
+    from qcorr.reading.time_source import resolve_time_axis
+
     if lammps_units is not None and lammps_units not in LAMMPS_UNIT_STYLES:
         raise ConfigError(
             f"--lammps-units {lammps_units!r} is not supported; choose one of "
@@ -188,6 +262,11 @@ def wrap_universe(universe, *, lammps_units: str | None = None,
         opened.is_lammps_dump = True
         opened.lammps_time_factor = unit_s / picosecond_s  # step x dt[unit] -> ps
         opened.lammps_velocity_factor = picosecond_s / unit_s  # Å/unit -> Å/ps
+    axis = resolve_time_axis(opened, frame_spacing_ps)
+    opened.stamped, opened.frame_spacing_ps, opened.time_axis_note = axis.stamped, axis.frame_spacing_ps, axis.note
+    repeats = repeated_boundary_frames(opened)
+    opened.dropped_frames = tuple(r.frame for r in repeats)
+    opened.dropped_records = tuple(r.record() for r in repeats)
     return opened
 
 
@@ -207,6 +286,7 @@ def open_trajectory(
     trajectory_format: str | None = None,
     reader_options: Mapping[str, object] | None = None,
     lammps_units: str | None = None,
+    frame_spacing_ps: float | None = None,
 ) -> OpenedTrajectory:
     """Open topology + trajectory files as an MDAnalysis Universe (streaming, nothing loaded).
 
@@ -223,6 +303,8 @@ def open_trajectory(
         Passed unchanged to :class:`MDAnalysis.Universe` (e.g. ``atom_style``, ``dt``).
     lammps_units : {"real", "metal"}, optional
         LAMMPS unit style of a dump trajectory; required for dumps.
+    frame_spacing_ps : float, optional
+        Time between consecutive frames, ps (see :func:`wrap_universe`).
 
     Returns
     -------
@@ -281,9 +363,9 @@ def open_trajectory(
         )
         release_quietly(err)
         raise TrajectoryError(message) from None
-    opened = wrap_universe(universe, lammps_units=lammps_units, files=[top, *trajs])
     check_complete(universe.trajectory)
-    return opened
+    return wrap_universe(universe, lammps_units=lammps_units, files=[top, *trajs],
+                         frame_spacing_ps=frame_spacing_ps)
 
 
 def check_complete(trajectory) -> None:

@@ -75,6 +75,7 @@ from qcorr.spectra.diagnostics import announce, diagnose
 from qcorr.spectra.estimator import SegmentAccumulator
 from qcorr.spectra.molecular_pass import MolecularPass
 from qcorr.spectra.raw_vdos import raw_spectra
+from qcorr.spectra.reading_checks import ReadingChecks
 from qcorr.spectra.run_plan import RunPlan, check_settings, plan_run
 from qcorr.spectra.spectrum_file import write_spectrum
 
@@ -124,7 +125,22 @@ class VibrationalSpectrum(AnalysisBase):
         sites (M, MW, EPW, LP, VS, DUM...) are excluded and other zero masses are an error.
     velocities_from : {"stored", "positions"}
         ``"positions"``: forward differences of positions (minimum image per step), the
-        spectrum divided by the difference's power transfer sinc²(πνΔt).
+        spectrum divided by the difference's power transfer sinc²(πνΔt), and the expected
+        rounding noise of the stored positions subtracted
+        (:mod:`qcorr.spectra.position_noise`; ``molecular=True`` is refused with rounded
+        positions).
+    position_precision : float, optional
+        Rounding step of the stored positions, Å, for ``velocities_from="positions"``;
+        read from XTC files (and must then agree), detected when the positions lie on a
+        common grid, else taken as 0 (unrounded) unless given
+        (:mod:`qcorr.reading.position_precision`).
+    frame_spacing_ps : float, optional
+        Time between consecutive frames of the trajectory, ps: required for formats
+        without per-frame time stamps (DCD, XYZ, ...); elsewhere it must agree with the
+        stamps (:mod:`qcorr.reading.time_source`).
+    allow_temperature_mismatch : bool
+        Compute even when a group's kinetic temperature differs from *temperature* by
+        more than a factor 2 (:mod:`qcorr.spectra.input_checks`).
     segment_ps : float
         Segment length, ps (rounded to an even number of frames); the resolution is
         1/segment length.
@@ -204,6 +220,9 @@ class VibrationalSpectrum(AnalysisBase):
         molecular: bool = False,
         molecules: str = "residue",
         lammps_units: str | None = None,
+        position_precision: float | None = None,
+        frame_spacing_ps: float | None = None,
+        allow_temperature_mismatch: bool = False,
         block: tuple[int, int] = (1, 1),
         fft_threads: int = 1,
         input_files: Sequence[str | os.PathLike[str]] | None = None,
@@ -218,7 +237,8 @@ class VibrationalSpectrum(AnalysisBase):
 
         check_settings(temperature=temperature, segment_ps=segment_ps, overlap=overlap, taper=taper,
                        velocities_from=velocities_from, molecules=molecules, block=block,
-                       fft_threads=fft_threads)
+                       fft_threads=fft_threads, position_precision=position_precision,
+                       frame_spacing_ps=frame_spacing_ps)
         if progress not in ("never", "auto", "always"):
             raise ConfigError(f"--progress {progress!r}: choose auto, always or never")
         if isinstance(atoms, Universe):
@@ -227,7 +247,8 @@ class VibrationalSpectrum(AnalysisBase):
             raise ConfigError("atoms: give an MDAnalysis Universe or a non-empty AtomGroup")
         super().__init__(atoms.universe.trajectory, verbose=verbose)
         self._atoms = atoms
-        self._opened = wrap_universe(atoms.universe, lammps_units=lammps_units, files=input_files)
+        self._opened = wrap_universe(atoms.universe, lammps_units=lammps_units, files=input_files,
+                                     frame_spacing_ps=frame_spacing_ps)
         topology = getattr(atoms.universe, "filename", None)
         topology_name = f"topology '{topology}'" if topology else "the topology"
         masses = masses_with_overrides(atoms, masses_by_type) if masses_by_type else None
@@ -237,6 +258,10 @@ class VibrationalSpectrum(AnalysisBase):
             warnings.warn(self._channels.note, QcorrWarning, stacklevel=2)
         self._groups = select_groups(atoms, self._channels, dict(groups or {}))
         assign_degrees_of_freedom(self._groups, constraints, constraints_per_molecule)
+        self._checks = ReadingChecks(
+            self._opened, self._channels, self._groups, temperature_K=temperature,
+            velocities_from=velocities_from, position_precision_A=position_precision, molecular=molecular,
+            allow_temperature_mismatch=allow_temperature_mismatch)
         self._temperature = float(temperature)
         self._segment_ps = float(segment_ps)
         self._overlap = float(overlap)
@@ -352,11 +377,13 @@ class VibrationalSpectrum(AnalysisBase):
         return self
 
     def _plan_run(self, start, stop, step, pieces: int) -> RunPlan:
-        """Frame window, segment settings and parts; every frame-window error is raised here."""
-        return plan_run(self._opened, start, stop, step, segment_ps=self._segment_ps,
+        """Frame window, segment settings and parts; every frame-window and reading error is raised here."""
+        plan = plan_run(self._opened, start, stop, step, segment_ps=self._segment_ps,
                         overlap=self._overlap, taper=self._taper,
                         velocities_from=self._velocities_from, molecular=self._molecular,
                         block=self._block, pieces=pieces)
+        self._checks.plan(plan)
+        return plan
 
     def _describe_call(self, start, stop, step) -> str:
         """A readable record of this call (the default ``command_line``)."""
@@ -399,13 +426,13 @@ class VibrationalSpectrum(AnalysisBase):
         self._prepare_sliced_trajectory(slicer=indexed_frames[:, 1])
         self._part = part
         self._prepare()
-        factor = self._opened.lammps_time_factor
-        frames = window_frames(self._opened, self._plan.window, part.read_from, part.read_stop)
+        opened, window = self._opened, self._plan.window
+        frames = window_frames(opened, window, part.read_from, part.read_stop)
         for k, ts in enumerate(progress(frames, total=self.n_frames, desc="frames", mode=self._progress_now)):
             self._frame_index = k
             self._ts = ts
             self.frames[k] = ts.frame
-            self.times[k] = ts.time * factor
+            self.times[k] = opened.time_ps(ts, window.frame(part.read_from + k))
             self._single_frame()
         self._finish_part()
         return _PartResult(self.frames, self.times, self.results)
@@ -462,10 +489,12 @@ class VibrationalSpectrum(AnalysisBase):
                 self._temperature, [g.constraints for g in self._groups],
                 finite_difference_timestep_ps=fd)
         stats = self._statistics
+        raw, correlation, noise = self._checks.subtract(
+            raw_spectra(powers.power, powers.frequency_Hz, self._temperature, finite_difference_timestep_ps=fd),
+            powers.correlation, powers.frequency_Hz)
         self.results.spectrum_parts = SpectrumParts(
-            raw_segments=raw_spectra(powers.power, powers.frequency_Hz, self._temperature,
-                                     finite_difference_timestep_ps=fd),
-            correlation_segments=powers.correlation,
+            raw_segments=raw,
+            correlation_segments=correlation,
             segment_index=np.arange(part.first_segment, part.stop_segment, dtype=np.int64),
             segment_first_frame=plan.window.start + powers.segment_first_frame * plan.window.step,
             wavenumber=powers.frequency_Hz / speed_of_light_cm_per_s,
@@ -477,6 +506,7 @@ class VibrationalSpectrum(AnalysisBase):
             kinetic_samples=np.asarray(stats.samples, dtype=np.int64),
             kinetic_u_A2_per_ps2=np.asarray(stats.kinetic, dtype=float),
             momentum_u_A_per_ps=np.asarray(stats.momentum, dtype=float).reshape(-1, 3),
+            noise=noise,
         )
         self._sampler = self._accumulator = self._molecular_pass = self._statistics = None
 
@@ -506,9 +536,11 @@ class VibrationalSpectrum(AnalysisBase):
             block_count=block_count, segment_count_window=plan.segment_count,
             worker_processes=self._worker_processes, lammps_units=self._opened.lammps_units,
             reader_options=self._reader_options, mass_overrides_u=self._masses_by_type,
-            excluded_atoms=self._channels.note,
+            excluded_atoms=self._channels.note, **self._checks.attributes(),
         )
+        self._checks.before_assembly(self.results.spectrum_parts)
         ds = spectrum_from_parts(self.results.spectrum_parts, group_table(self._groups), attrs)
+        self._checks.after_assembly(ds)
         checks = diagnose(ds)
         del self.results["spectrum_parts"]
         self.results.spectrum = ds

@@ -29,6 +29,7 @@ from numpy.typing import NDArray
 from qcorr import units
 from qcorr.constants import speed_of_light_cm_per_s, wavenumber_to_THz
 from qcorr.spectra.molecular_file import MolecularParts, add_molecular_variables
+from qcorr.spectra.position_noise import NoiseParts, measured_shares
 from qcorr.spectra.spectrum_file import (
     FILE_KIND,
     FORMAT_VERSION,
@@ -85,6 +86,9 @@ class SpectrumParts:
         Σ ½ m v² of the whole system after the centre-of-mass removal, u Å² ps⁻².
     momentum_u_A_per_ps : float array (n_frames, 3)
         Total momentum Σ m v before the removal, u Å ps⁻¹.
+    noise : NoiseParts or None
+        Rounding noise of positions subtracted from ``raw_segments`` (spectra from
+        differences of positions; :mod:`qcorr.spectra.position_noise`); equal in every block.
     """
 
     raw_segments: NDArray[np.float64]
@@ -100,6 +104,7 @@ class SpectrumParts:
     kinetic_samples: NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
     kinetic_u_A2_per_ps2: NDArray[np.float64] = field(default_factory=lambda: np.zeros(0))
     momentum_u_A_per_ps: NDArray[np.float64] = field(default_factory=lambda: np.zeros((0, 3)))
+    noise: NoiseParts | None = None
 
 
 def group_table(groups) -> dict[str, np.ndarray]:
@@ -133,6 +138,7 @@ def assemble_spectrum(
     segment_index: np.ndarray,
     segment_first_frame: np.ndarray,
     attrs: dict[str, object],
+    noise: NoiseParts | None = None,
 ) -> xr.Dataset:
     """Normalise raw per-segment spectra to the degrees of freedom and lay out the spectrum file.
 
@@ -155,6 +161,10 @@ def assemble_spectrum(
     attrs : dict
         Global attributes (contract + :data:`COMBINE_ATTRIBUTES`); ``temperature_K``
         must be among them.  ``diagnostics`` is left to the caller.
+    noise : NoiseParts, optional
+        Rounding noise subtracted from *raw_segments*: adds ``vdos_position_noise``
+        (its floor with the vdos normalisation), ``position_noise_share`` and
+        ``position_noise_model_error``.
 
     Returns
     -------
@@ -242,6 +252,19 @@ def assemble_spectrum(
         if unit is not None:
             var_attrs["units"] = unit
         data[name] = (("group",), table[name], var_attrs)
+    if noise is not None:
+        floor = np.asarray(noise.floor, dtype=float)
+        data["vdos_position_noise"] = (
+            ("group", "wavenumber"), floor * factor[:, None],
+            {"units": "cm", "long_name": "expected rounding noise of positions subtracted from the spectrum "
+                                        "(same normalisation as vdos)"})
+        data["position_noise_share"] = (
+            ("group",), measured_shares(raw_integral, np.trapezoid(floor, wavenumber, axis=-1)),
+            {"units": "1", "long_name": "share of the kinetic energy from differences of positions that was "
+                                        "rounding noise (subtracted)"})
+        data["position_noise_model_error"] = (
+            ("group",), np.asarray(noise.model_error, dtype=float),
+            {"units": "1", "long_name": "bound of the rounding model's error, fraction of the kinetic energy"})
     ds = xr.Dataset(data, coords=coords, attrs=dict(attrs))
     ds.attrs.setdefault("diagnostics", "[]")
     ds.attrs.update(provenance_attributes(ds))
@@ -266,6 +289,13 @@ def spectrum_attributes(
     reader_options: Mapping[str, object] | None = None,
     mass_overrides_u: Mapping[str, object] | None = None,
     excluded_atoms: str = "",
+    time_axis: str = "time stamps of the trajectory file(s)",
+    velocity_check: str = "not made",
+    velocity_position_ratio: float = float("nan"),
+    position_precision_A: float = 0.0,
+    position_precision_source: str = "",
+    repeated_frames_dropped: list | None = None,
+    temperature_mismatch_allowed: bool = False,
 ) -> dict[str, object]:
     """Global attributes of a spectrum file that describe how it was made.
 
@@ -298,6 +328,17 @@ def spectrum_attributes(
         Reader keywords and per-type masses (u) used, recorded as JSON.
     excluded_atoms : str
         Note on excluded virtual sites.
+    time_axis : str
+        Where the frame spacing came from (:mod:`qcorr.reading.time_source`).
+    velocity_check, velocity_position_ratio : str, float
+        Stored velocities against positions (:mod:`qcorr.reading.velocity_check`; NaN: not made).
+    position_precision_A, position_precision_source : float, str
+        Rounding step of the positions (Å) and its source (spectra from positions; 0 and
+        ``""`` for stored velocities).
+    repeated_frames_dropped : list of dict, optional
+        Restart frames left out (:mod:`qcorr.reading.restarts`).
+    temperature_mismatch_allowed : bool
+        The kinetic-temperature refusal was switched off (``--allow-temperature-mismatch``).
     """
     positions = velocity_source == "positions"
     return {
@@ -328,6 +369,13 @@ def spectrum_attributes(
         "reader_options": json.dumps(dict(reader_options or {}), sort_keys=True),
         "mass_overrides_u": json.dumps(dict(mass_overrides_u or {}), sort_keys=True),
         "excluded_atoms": excluded_atoms,
+        "time_axis": time_axis,
+        "velocity_check": velocity_check,
+        "velocity_position_ratio": float(velocity_position_ratio),
+        "position_precision_A": float(position_precision_A) if positions else 0.0,
+        "position_precision_source": position_precision_source if positions else "",
+        "repeated_frames_dropped": json.dumps(list(repeated_frames_dropped or [])),
+        "temperature_mismatch_allowed": int(bool(temperature_mismatch_allowed)),
         "input_files": json.dumps(input_files),
         "diagnostics": "[]",
         "qcorr_version": qcorr_version,
@@ -383,6 +431,7 @@ def spectrum_from_parts(parts: SpectrumParts, table: Mapping[str, np.ndarray],
         segment_index=parts.segment_index,
         segment_first_frame=parts.segment_first_frame,
         attrs=attrs,
+        noise=parts.noise,
     )
     if parts.kinetic_samples.size:
         from qcorr.spectra.kinetic_series import kinetic_variables

@@ -26,6 +26,7 @@ from qcorr.spectra.molecular_file import (
     combine_molecular_parts,
     join_molecular_parts,
 )
+from qcorr.spectra.position_noise import NoiseParts
 from qcorr.spectra.spectrum_file import (
     COMBINE_ATTRIBUTES,
     COMBINE_VARIABLES,
@@ -74,6 +75,12 @@ def join_spectrum_parts(parts: list[SpectrumParts]) -> SpectrumParts:
     if any(m is None for m in molecular) and not all(m is None for m in molecular):
         raise SpectrumFileError("some frame blocks have molecular parts and others not; make every block "
                                 "with the same options (--molecular)")
+    noise = [p.noise for p in parts]
+    if any((m is None) != (noise[0] is None) for m in noise) or (noise[0] is not None and not all(
+            np.allclose(m.floor, noise[0].floor, rtol=1e-9, atol=0.0) and m.step_A == noise[0].step_A
+            for m in noise)):
+        raise SpectrumFileError("frame blocks subtracted different rounding noise of positions; make every "
+                                "block with the same options (--velocities-from, --position-precision)")
     return SpectrumParts(
         raw_segments=np.concatenate([p.raw_segments for p in parts], axis=1),
         correlation_segments=np.concatenate([p.correlation_segments for p in parts], axis=1),
@@ -88,6 +95,7 @@ def join_spectrum_parts(parts: list[SpectrumParts]) -> SpectrumParts:
         kinetic_samples=np.concatenate([p.kinetic_samples for p in parts]),
         kinetic_u_A2_per_ps2=np.concatenate([p.kinetic_u_A2_per_ps2 for p in parts]),
         momentum_u_A_per_ps=np.concatenate([p.momentum_u_A_per_ps for p in parts]),
+        noise=noise[0],
     )
 
 
@@ -99,6 +107,13 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
     dataset's :class:`~qcorr.spectra.molecular_file.MolecularParts` (None: none).
     """
     frames = int(ds.attrs["statistics_frames"])
+    noise = None
+    if "vdos_position_noise" in ds.variables:
+        scale = (np.asarray(ds["raw_integral"].values, dtype=float)
+                 / np.asarray(ds["degrees_of_freedom"].values, dtype=float))
+        noise = NoiseParts(np.asarray(ds["vdos_position_noise"].values, dtype=float) * scale[:, None],
+                           np.asarray(ds["position_noise_model_error"].values, dtype=float),
+                           float(ds.attrs.get("position_precision_A", 0.0)))
     return SpectrumParts(
         raw_segments=raw_segments_of(ds),
         correlation_segments=np.asarray(ds["vacf_segments_raw"].values, dtype=float),
@@ -111,6 +126,7 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
         com_mv2_sum=float(ds.attrs["centre_of_mass_mv2_u_A2_per_ps2"]) * frames,
         molecular=molecular,
         **_kinetic_series_of(ds),
+        noise=noise,
     )
 
 
@@ -265,9 +281,10 @@ def _check_blocks(datasets: list[xr.Dataset], names: list[str]) -> int:
         "temperature_K", "timestep_ps", "frame_start", "frame_stop", "frame_step",
         "segment_frames", "segment_overlap", "taper", "velocity_source",
         "finite_difference_correction", "block_count", "segment_count_window",
+        "position_precision_A", "repeated_frames_dropped",
     )
     for attr in same_attrs:
-        _same([ds.attrs[attr] for ds in datasets], f"attribute '{attr}'", names)
+        _same([ds.attrs.get(attr) for ds in datasets], f"attribute '{attr}'", names)
     for var in ("group", "wavenumber", "lag", *GROUP_TABLE):
         _same([ds[var].values for ds in datasets], f"'{var}'", names)
     return int(datasets[0].attrs["block_count"])

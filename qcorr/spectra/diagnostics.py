@@ -391,8 +391,14 @@ ALL_CHECKS = (check_aliasing, check_resolution, check_temperature, check_centre_
 
 
 def run_diagnostics(ds: xr.Dataset) -> list[Diagnostic]:
-    """Run every check on a spectrum dataset (its ``diagnostics`` attribute is not needed)."""
-    return [check(ds) for check in ALL_CHECKS]
+    """Run every check on a spectrum dataset (its ``diagnostics`` attribute is not needed).
+
+    :data:`ALL_CHECKS`, then the checks of how the input was read
+    (:func:`qcorr.spectra.input_checks.check_time_axis`, ``check_position_noise``).
+    """
+    from qcorr.spectra.input_checks import check_position_noise, check_time_axis
+
+    return [check(ds) for check in (*ALL_CHECKS, check_time_axis, check_position_noise)]
 
 
 def diagnose(ds: xr.Dataset) -> list[Diagnostic]:

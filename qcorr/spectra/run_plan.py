@@ -44,7 +44,8 @@ def _number(value) -> float | None:
 
 def check_settings(*, temperature: float, segment_ps: float = 5.0, overlap: float = 0.5,
                    taper: str = "hann", velocities_from: str = "stored", molecules: str = "residue",
-                   block: tuple[int, int] = (1, 1), fft_threads: int = 1) -> None:
+                   block: tuple[int, int] = (1, 1), fft_threads: int = 1,
+                   position_precision: float | None = None, frame_spacing_ps: float | None = None) -> None:
     """Check the settings of a spectrum before any file is read.
 
     Parameters are those of :class:`VibrationalSpectrum` (temperature in K, segment
@@ -81,6 +82,17 @@ def check_settings(*, temperature: float, segment_ps: float = 5.0, overlap: floa
         raise ConfigError(f"--block {block!r}: give (I, N), block I (1-based) of N; I must be between 1 and N")
     if isinstance(fft_threads, bool) or not isinstance(fft_threads, (int, np.integer)) or fft_threads < 1:
         raise ConfigError(f"--threads {fft_threads!r}: must be at least 1")
+    if position_precision is not None:
+        p = _number(position_precision)
+        if p is None or not math.isfinite(p) or p < 0:
+            raise ConfigError(f"--position-precision {position_precision!r}: must be a rounding step of 0 or more, in Å")
+        if velocities_from != "positions":
+            raise ConfigError("--position-precision applies only with --velocities-from positions (stored "
+                              "velocities are not rounded positions); leave it out")
+    if frame_spacing_ps is not None:
+        f = _number(frame_spacing_ps)
+        if f is None or not math.isfinite(f) or f <= 0:
+            raise ConfigError(f"--frame-spacing {frame_spacing_ps!r}: must be a positive number of ps")
 
 
 @dataclass(frozen=True)

@@ -198,7 +198,7 @@ def harmonic_property_rows(
     for g in groups:
         where = f"spectrum file '{source}', group '{g.name}'"
         bin_se = segment_standard_error(g.vdos_segments, k_eff)
-        check_nonnegative(g.wavenumber_cm, g.vdos, bin_se, where)
+        check_nonnegative(g.wavenumber_cm, g.vdos, bin_se, where, k_eff)
         check = zero_frequency_check(
             g.wavenumber_cm, g.vdos, float(bin_se[0]) if bin_se.size else float("nan"),
             zero_frequency_threshold,

@@ -34,6 +34,9 @@ DEFAULT_ZERO_FREQUENCY_THRESHOLD = 0.05
 ZERO_FREQUENCY_STANDARD_ERRORS = 3.0
 #: a spectral density below -(this many standard errors) is negative beyond noise
 NEGATIVE_DENSITY_STANDARD_ERRORS = 5.0
+#: probability of refusing a correct spectrum for a negative bin, over all its bins, when the
+#: standard errors come from few segments (see :func:`negative_density_limit`; our choice)
+NEGATIVE_DENSITY_FALSE_ALARM = 1e-3
 
 
 @dataclass(frozen=True)
@@ -105,14 +108,35 @@ def zero_frequency_check(
     )
 
 
+def negative_density_limit(bins: int, effective_segments: float | None) -> float:
+    """Standard errors below zero beyond which a density is negative beyond noise.
+
+    :data:`NEGATIVE_DENSITY_STANDARD_ERRORS`, or where the standard error is itself
+    estimated from few segments, the quantile of Student's t for K_eff − 1 degrees of
+    freedom at a false-alarm probability of :data:`NEGATIVE_DENSITY_FALSE_ALARM` over all
+    *bins* (whichever is larger; Student, Biometrika 6, 1 (1908)).  Spectra from
+    differences of positions have expected rounding noise subtracted
+    (:mod:`qcorr.spectra.position_noise`), so their bins scatter about zero wherever
+    nothing moves; a plain 5 with an SE from 7 segments refuses ~5 % of such spectra.
+    """
+    if effective_segments is None or not effective_segments > 1 or not math.isfinite(effective_segments):
+        return NEGATIVE_DENSITY_STANDARD_ERRORS
+    from scipy import stats
+
+    quantile = float(stats.t.isf(NEGATIVE_DENSITY_FALSE_ALARM / max(int(bins), 1), effective_segments - 1.0))
+    return max(NEGATIVE_DENSITY_STANDARD_ERRORS, quantile)
+
+
 def check_nonnegative(
-    wavenumber_cm: ArrayLike, vdos: ArrayLike, vdos_se: ArrayLike, where: str
+    wavenumber_cm: ArrayLike, vdos: ArrayLike, vdos_se: ArrayLike, where: str,
+    effective_segments: float | None = None,
 ) -> None:
     """Refuse a spectral density that is negative beyond its noise.
 
     Noise is the per-bin standard error from the segment scatter; a bin is
-    negative beyond noise if S < -(5 standard errors + 1e-9 max|S|) (5 sigma keeps
-    false alarms rare over thousands of bins; the 1e-9 term absorbs round-off
+    negative beyond noise if S < -(n standard errors + 1e-9 max|S|) with n from
+    :func:`negative_density_limit` (5 when *effective_segments* is not given: 5 sigma
+    keeps false alarms rare over thousands of bins; the 1e-9 term absorbs round-off
     when no standard error is known).
 
     Raises
@@ -123,14 +147,14 @@ def check_nonnegative(
     x = np.asarray(wavenumber_cm, dtype=float)
     s = np.asarray(vdos, dtype=float)
     se = np.nan_to_num(np.asarray(vdos_se, dtype=float), nan=0.0)
-    limit = -(NEGATIVE_DENSITY_STANDARD_ERRORS * se + 1e-9 * float(np.max(np.abs(s))))
+    limit = -(negative_density_limit(s.size, effective_segments) * se + 1e-9 * float(np.max(np.abs(s))))
     bad = np.nonzero(s < limit)[0]
     if bad.size:
         i = int(bad[np.argmin(s[bad] - limit[bad])])
         raise SpectrumFileError(
             f"{where}: spectral density is negative beyond noise at {x[i]:.4g} cm-1 "
             f"(S = {s[i]:.3g} cm, standard error {se[i]:.2g} cm; {bad.size} such bins); "
-            "a qcorr spectrum is never negative: remake it, or check how it was derived"
+            "a qcorr spectrum is negative only within its noise: remake it, or check how it was derived"
         )
 
 

@@ -215,6 +215,13 @@ def check_cells(row, where):
             "stop",
             f"stop ({row['stop']}) must be larger than start ({row['start']})",
         )
+    precision = row.get("position_precision_A")
+    if precision is not None and pd.notna(precision) and row["velocities_from"] != "positions":
+        raise sheet_error(
+            where,
+            "position_precision_A",
+            "applies only with velocities_from 'positions'; leave the cell empty",
+        )
 
 
 def check_files(row, where):
@@ -382,6 +389,14 @@ def get_spectrum_options(wildcards):
             options += [option, row[column]]
     if row["lammps_units"]:
         options += ["--lammps-units", row["lammps_units"]]
+    for column, option in (
+        ("position_precision_A", "--position-precision"),
+        ("frame_spacing_ps", "--frame-spacing"),
+    ):
+        if column in row and pd.notna(row[column]):
+            options += [option, f"{float(row[column]):g}"]
+    if bool(row["allow_temperature_mismatch"]):
+        options.append("--allow-temperature-mismatch")
     for column, option in (
         ("groups", "--group"),
         ("constraints", "--constraints"),
