@@ -77,6 +77,7 @@ from qcorr.spectra.molecular_pass import MolecularPass
 from qcorr.spectra.raw_vdos import raw_spectra
 from qcorr.spectra.run_plan import RunPlan, check_settings, plan_run
 from qcorr.spectra.spectrum_file import write_spectrum
+from qcorr.spectra.stated_temperature import check_stated_temperature
 
 __all__ = ["VibrationalSpectrum", "check_settings"]
 
@@ -505,7 +506,12 @@ class VibrationalSpectrum(AnalysisBase):
             reader_options=self._reader_options, mass_overrides_u=self._masses_by_type,
             excluded_atoms=self._channels.note,
         )
-        ds = spectrum_from_parts(self.results.spectrum_parts, group_table(self._groups), attrs)
+        table = group_table(self._groups)
+        parts = self.results.spectrum_parts
+        total = list(table["group"]).index("total")
+        check_stated_temperature(parts.raw_segments[total], parts.wavenumber,
+                                 float(table["degrees_of_freedom"][total]), self._temperature)
+        ds = spectrum_from_parts(parts, table, attrs)
         checks = diagnose(ds)
         del self.results["spectrum_parts"]
         self.results.spectrum = ds
