@@ -442,6 +442,11 @@ BAD_SHEETS = {
                        "unknown column"),
     "unknown 2PT choice": ([copper_row(hard_sphere_entropy="guess")], "row 1",
                            "'hard_sphere_entropy'", "guess"),
+    # issue 11: NaN was taken as an empty cell (the default); blocks are checked against the
+    # segments of the frame window when the workflow loads (the trajectory is opened)
+    "segment_ps nan": ([copper_row(segment_ps="nan")], "row 1", "'segment_ps'", "not a finite number"),
+    "more blocks than segments": ([copper_row(segment_ps="2", blocks="1000")], "row 1", "'blocks'",
+                                  "1000 blocks but the frame window holds only"),
 }
 
 
