@@ -286,8 +286,7 @@ def atomic_path(target: str | os.PathLike[str], option: str | None = None) -> It
 def _write_all(path: Path, data: bytes | memoryview) -> None:
     view = memoryview(data).cast("B")
     with open(path, "wb") as handle:
-        for first in range(0, len(view), 1 << 24):
-            handle.write(view[first : first + (1 << 24)])
+        handle.writelines(view[first : first + (1 << 24)] for first in range(0, len(view), 1 << 24))
 
 
 def write_bytes_atomic(target: str | os.PathLike[str], data: bytes | memoryview,

@@ -312,7 +312,7 @@ def _check_selections(row: pd.Series, where: _Where) -> None:
         except MDAnalysis.exceptions.SelectionError as err:
             raise where.error("groups", f"selection of group {name!r} is invalid: {err}".splitlines()[0]) from None
         except Exception:  # noqa: BLE001 -- needs data the topology lacks; 'qcorr spectrum' checks it
-            continue
+            count = None
         if count == 0:
             raise where.error("groups", f"selection {selection!r} of group {name!r} matches no atom of "
                                         f"{row['topology']!r}")

@@ -17,7 +17,7 @@ expected failure (strict: once the fix lands it fails until ``pending`` is remov
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 from robustness_inputs import SPECTRUM_SETTINGS

@@ -26,7 +26,14 @@ from pathlib import Path
 
 import numpy as np
 import synthetic
-from conftest import OSC_BINS, OSC_FRAMES, OSC_MASS_U, OSC_SEGMENT_PS, OSC_TEMPERATURE_K, OSC_TIMESTEP_PS
+from conftest import (
+    OSC_BINS,
+    OSC_FRAMES,
+    OSC_MASS_U,
+    OSC_SEGMENT_PS,
+    OSC_TEMPERATURE_K,
+    OSC_TIMESTEP_PS,
+)
 
 #: the command-line options every spectrum case starts from (files are added per case)
 SPECTRUM_SETTINGS = ["--temperature", "300", "--segment-ps", f"{OSC_SEGMENT_PS:g}", "--mass",

@@ -25,7 +25,6 @@ them they are skipped, or fail when the environment variable CI is set.
 
 from __future__ import annotations
 
-import contextlib
 import os
 import re
 import signal

@@ -130,10 +130,10 @@ class _Parser(argparse.ArgumentParser):
         kwargs.setdefault("allow_abbrev", False)
         super().__init__(*args, **kwargs)
 
-    def error(self, message: str):  # noqa: D102 -- argparse's hook
+    def error(self, message: str):
         raise UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")
 
-    def parse_known_args(self, args=None, namespace=None):  # noqa: D102 -- refuses abbreviations first
+    def parse_known_args(self, args=None, namespace=None):
         words = list(sys.argv[1:] if args is None else args)
         for word in words:
             if word == "--":
@@ -146,7 +146,7 @@ class _Parser(argparse.ArgumentParser):
                 break  # the subcommand: its own parser checks the rest
         return super().parse_known_args(args, namespace)
 
-    def parse_args(self, args=None, namespace=None):  # noqa: D102 -- names unknown options
+    def parse_args(self, args=None, namespace=None):
         parsed, extras = self.parse_known_args(args, namespace)
         if extras:
             parser = self

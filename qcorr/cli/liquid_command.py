@@ -12,9 +12,9 @@ import math
 import sys
 from pathlib import Path
 
+from qcorr.cli.option_types import finite_number
 from qcorr.errors import ConfigError
 from qcorr.outputs import summary, table
-from qcorr.cli.option_types import finite_number
 from qcorr.safe_write import check_output
 from qcorr.spectra.spectrum_file import read_spectrum, write_netcdf_atomic
 from qcorr.thermo import twophase_table

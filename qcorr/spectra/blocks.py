@@ -24,7 +24,6 @@ from qcorr.spectra.molecular_file import (
     combine_molecular_parts,
     join_molecular_parts,
 )
-from qcorr.spectra.stated_temperature import check_stated_temperature
 from qcorr.spectra.spectrum_file import (
     COMBINE_ATTRIBUTES,
     COMBINE_VARIABLES,
@@ -32,6 +31,7 @@ from qcorr.spectra.spectrum_file import (
     json_attribute,
     raw_segments_of,
 )
+from qcorr.spectra.stated_temperature import check_stated_temperature
 
 __all__ = [
     "combine_blocks",
