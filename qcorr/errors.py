@@ -32,6 +32,10 @@ class SpectrumFileError(QcorrError):
     """A spectrum file was not written by qcorr, or lacks variables/attributes."""
 
 
+class OutputError(QcorrError):
+    """An output cannot be written where asked (names the file, the POSIX error and what to do)."""
+
+
 class PhysicsError(QcorrError):
     """A requested quantity is not defined for this input (e.g. harmonic entropy of a liquid)."""
 

@@ -111,13 +111,31 @@ def test_output_may_not_overwrite_an_input(bad_files, run_qcorr):
 
 
 def test_unwritable_output_directory_fails_before_reading(bad_files, tmp_path, run_qcorr, monkeypatch):
-    # directory modes do not bind root, so the permission answer is simulated
-    import os
+    """The output directory is probed (a file made and removed) before any input is read.
+
+    Permission bits do not bind root, so the refusal is simulated here (POSIX open(2):
+    EACCES); tests/test_robustness.py makes real read-only and full file systems."""
+    import errno
+
+    import MDAnalysis
+
+    import qcorr.safe_write
 
     locked = tmp_path / "locked"
     locked.mkdir()
-    real_access = os.access
-    monkeypatch.setattr(os, "access", lambda p, mode: False if str(p) == str(locked) else real_access(p, mode))
+    real_mkstemp = qcorr.safe_write.tempfile.mkstemp
+
+    def refuse(*args, dir=None, **kwargs):
+        if str(dir) == str(locked):
+            raise PermissionError(errno.EACCES, "Permission denied")
+        return real_mkstemp(*args, dir=dir, **kwargs)
+
+    def never(*args, **kwargs):
+        raise AssertionError("an input was read before the output was checked")
+
+    monkeypatch.setattr(qcorr.safe_write.tempfile, "mkstemp", refuse)
+    monkeypatch.setattr(MDAnalysis, "Universe", never)
     code, _, stderr = run_qcorr("spectrum", *_base(bad_files), "--output", locked / "sub" / "s.nc")
-    assert code != 0 and f"cannot write in '{locked}'" in stderr
+    assert code != 0, stderr
+    assert f"cannot write --output '{locked}/sub/s.nc': Permission denied (EACCES)" in stderr
     assert list(locked.iterdir()) == []

@@ -111,6 +111,7 @@ def test_blocks_combine_to_the_single_job(single_job, oscillator_files, tmp_path
         for p in joined["sha256_parts"]:
             assert p["sha256"] == hashlib.sha256(content[p["first_byte"]:p["stop_byte"]]).hexdigest()
         assert hashlib.sha256(content).hexdigest() == single_rec["sha256"]
+        assert joined["sha256_sample"] == single_rec["sha256"]  # a small file is sampled whole
 
     # missing block
     code, _, err = run_qcorr("combine", *blocks[:2], "--output", tmp_path / "x.nc")

@@ -568,7 +568,12 @@ def test_segment_starts_and_hop():
     assert SpectrumSettings(0.002, 10, 0.75).hop_frames == 2  # round(7.5) = 8 (banker's rounding)
     assert segment_frames_for(5.0, 0.002) == 2500
     assert segment_frames_for(5.0, 0.003) == 1666  # 1666.7 -> nearest even
-    assert segment_frames_for(0.001, 0.002) == 4
+    assert segment_frames_for(0.008, 0.002) == 4
+    # shorter than 4 frames, or more frames than any trajectory: refused, not silently changed
+    with pytest.raises(ConfigError, match="at least 4 frames, 0.008 ps"):
+        segment_frames_for(0.001, 0.002)
+    with pytest.raises(SamplingError, match="more than any trajectory"):
+        segment_frames_for(1e308, 0.002)
 
 
 def test_block_range_partitions_segments():

@@ -221,19 +221,26 @@ def test_combine_blocks_rebuilds_the_whole():
 def test_file_records_of_blocks_must_cover_each_file_once():
     from qcorr.spectra.blocks import combine_file_records
 
-    def block(first, stop, size=10, name="run.trr"):
-        return [{"name": name, "size_bytes": size,
+    def block(first, stop, size=10, name="run.trr", sample="s1"):
+        return [{"name": name, "size_bytes": size, "sha256_sample": sample,
                  "sha256_parts": [{"first_byte": first, "stop_byte": stop, "sha256": f"{first}"}]}]
 
     names = ["b1.nc", "b2.nc"]
     joined = combine_file_records([block(0, 5), block(5, 10)], names)
     assert [p["first_byte"] for p in joined[0]["sha256_parts"]] == [0, 5]
+    assert joined[0]["sha256_sample"] == "s1"
+    # a copy under another name is the same input (hashes, not names, are compared)
+    assert combine_file_records([block(0, 5), block(5, 10, name="copy.trr")], names)
     with pytest.raises(SpectrumFileError, match="do not cover"):
         combine_file_records([block(0, 4), block(5, 10)], names)  # gap
     with pytest.raises(SpectrumFileError, match="do not cover"):
         combine_file_records([block(0, 5), block(0, 5)], names)  # the same part twice
-    with pytest.raises(SpectrumFileError, match="b2.nc.*other input files"):
+    with pytest.raises(SpectrumFileError, match="b2.nc.*another input.*sizes differ"):
         combine_file_records([block(0, 5), block(5, 11, size=11)], names)  # another file size
+    with pytest.raises(SpectrumFileError, match="b2.nc.*another input.*same size.*different SHA-256 of sampled"):
+        combine_file_records([block(0, 5), block(5, 10, sample="s2")], names)  # same name and size
+    with pytest.raises(SpectrumFileError, match="b1.nc.*records no SHA-256"):
+        combine_file_records([block(0, 5, sample=None), block(5, 10)], names)
     whole = [{"name": "top.gro", "size_bytes": 3, "sha256": "ab"}]
-    with pytest.raises(SpectrumFileError, match="input file record of 'top.gro'"):
+    with pytest.raises(SpectrumFileError, match="another input"):
         combine_file_records([whole, [{"name": "top.gro", "size_bytes": 3, "sha256": "cd"}]], names)

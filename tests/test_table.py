@@ -166,16 +166,23 @@ def test_format_table_shows_errors_and_one_basis() -> None:
 
 
 def test_failure_after_csv_written_leaves_nothing(tmp_path, monkeypatch) -> None:
-    """The CSV temp file is complete but the sidecar write fails: neither file appears."""
-    import pathlib
+    """The CSV temp file is complete but the sidecar write fails (ENOSPC, POSIX write(2)):
+    one OutputError naming the sidecar, and neither file appears, nor a temporary file."""
+    import errno
+
+    import qcorr.safe_write
+    from qcorr.errors import OutputError
 
     target = tmp_path / "t.csv"
+    real_write = qcorr.safe_write._write_all
 
-    def broken(self, *args, **kwargs):
-        raise OSError("disk full (simulated)")
+    def broken(path, data):
+        if ".t.json." in path.name:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        real_write(path, data)
 
-    monkeypatch.setattr(pathlib.Path, "write_text", broken)
-    with pytest.raises(OSError, match="simulated"):
+    monkeypatch.setattr(qcorr.safe_write, "_write_all", broken)
+    with pytest.raises(OutputError, match=r"cannot write '.*t\.json': No space left on device \(ENOSPC\)"):
         table.write_table(table.rows_to_frame(_rows()), target, {})
     monkeypatch.undo()
     assert not target.exists() and not table.sidecar_path(target).exists()

@@ -276,6 +276,29 @@ def test_hashing_in_parts_covers_the_file_once(tmp_path, parts):
         inp.byte_range_of_part(10, 3, 3)
 
 
+def test_sampled_hash_is_the_same_for_every_block(tmp_path, monkeypatch):
+    import hashlib
+
+    # every block job hashes the same chunks of the whole file (here 4 chunks of 16 bytes at
+    # floor(k (size - 16) / 3)); the whole file when it is no larger than the sample
+    monkeypatch.setattr(inp, "SAMPLE_CHUNKS", 4)
+    monkeypatch.setattr(inp, "SAMPLE_CHUNK_BYTES", 16)
+    content = np.random.default_rng(3).bytes(1000)
+    p = tmp_path / "traj.bin"
+    p.write_bytes(content)
+    expected = hashlib.sha256(b"".join(content[o:o + 16] for o in (0, 328, 656, 984))).hexdigest()
+    samples = {inp.start_describing_files([p], part, 3).result()[0]["sha256_sample"] for part in range(3)}
+    assert samples == {expected}
+    small = tmp_path / "small.bin"
+    small.write_bytes(content[:64])
+    assert inp.sample_digest(small, 64) == hashlib.sha256(content[:64]).hexdigest()
+    other = tmp_path / "other.bin"
+    other.write_bytes(content[:500] + bytes([content[500] ^ 1]) + content[501:])  # outside the chunks
+    assert inp.sample_digest(other, 1000) == expected  # the documented limit of a sample
+    other.write_bytes(content[:330] + bytes([content[330] ^ 1]) + content[331:])  # inside chunk 2
+    assert inp.sample_digest(other, 1000) != expected
+
+
 @pytest.mark.parametrize("n_atoms", [1, 63, 64, 65, 2001])
 def test_blockwise_vector_subtraction_equals_broadcasting(n_atoms):
     # the blocked subtraction used on float32 frames must give numpy's broadcast result exactly

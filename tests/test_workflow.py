@@ -499,6 +499,11 @@ BAD_SHEETS = {
                           "has one run"),
     "unknown gas system": ([copper_row(ensemble="npt", gas_system="vapour")], "row 1",
                            "'gas_system'", "not the id of another system"),
+    # issue 11: NaN was taken as an empty cell (the default); blocks are checked against the
+    # segments of the frame window when the workflow loads (the trajectory is opened)
+    "segment_ps nan": ([copper_row(segment_ps="nan")], "row 1", "'segment_ps'", "not a finite number"),
+    "more blocks than segments": ([copper_row(segment_ps="2", blocks="1000")], "row 1", "'blocks'",
+                                  "1000 blocks but the frame window holds only"),
 }
 
 

@@ -11,8 +11,10 @@ heavy libraries inside ``run``, or at the top); the other subcommands are listed
 the ``NAME``/``HELP``/``DESCRIPTION`` strings of their sources, so keep those plain
 string literals.
 
-Errors of the :class:`qcorr.errors.QcorrError` family are printed as one line,
-``qcorr: error: ...``, and give a non-zero exit status.
+Errors of the :class:`qcorr.errors.QcorrError` family, and command-line errors found by
+the parser (unknown, missing, abbreviated or badly typed options), are printed as one line,
+``qcorr: error: ...``, and give a non-zero exit status (2).  Options must be spelled out
+in full: an abbreviation such as ``--temp`` is refused, not guessed.
 """
 
 from __future__ import annotations
@@ -118,6 +120,59 @@ def _commands_for(argv: Sequence[str] | None) -> list:
     return commands
 
 
+class UsageError(QcorrError):
+    """The command line itself is wrong (unknown, missing, abbreviated or badly typed option)."""
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one ``qcorr: error:`` line, and that takes no
+    abbreviated options (``--temp`` for ``--temperature`` would silently change meaning when
+    a second option starting the same way is added)."""
+
+    def __init__(self, *args, **kwargs) -> None:
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)
+
+    def error(self, message: str):
+        raise UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")
+
+    def parse_known_args(self, args=None, namespace=None):
+        words = list(sys.argv[1:] if args is None else args)
+        for word in words:
+            if word == "--":
+                break
+            option = word.split("=", 1)[0]
+            if option.startswith("--") and option not in self._option_string_actions:
+                if any(known.startswith(option) for known in self._option_string_actions):
+                    self.error(_unknown_arguments([option], self))
+            elif not word.startswith("-") and self._subparsers is not None:
+                break  # the subcommand: its own parser checks the rest
+        return super().parse_known_args(args, namespace)
+
+    def parse_args(self, args=None, namespace=None):
+        parsed, extras = self.parse_known_args(args, namespace)
+        if extras:
+            parser = self
+            command = getattr(parsed, "command", None)
+            if command and self._subparsers is not None:
+                parser = self._subparsers._group_actions[0].choices.get(command, self)
+            parser.error(_unknown_arguments(extras, parser))
+        return parsed
+
+
+def _unknown_arguments(extras: list[str], parser: argparse.ArgumentParser) -> str:
+    """What to say about unrecognised arguments: for an option, the options it abbreviates."""
+    options = [word for word in extras if word.startswith("-")]
+    if not options:
+        return f"unexpected arguments: {' '.join(extras)}"
+    word = options[0].split("=", 1)[0]
+    meant = sorted(o for o in parser._option_string_actions if o.startswith(word) and o != word)
+    if meant:
+        return (f"unknown option {word}: options are not abbreviated; did you mean "
+                f"{' or '.join(meant)}?")
+    return f"unknown option {word}"
+
+
 def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
     """The ``qcorr`` parser.
 
@@ -128,7 +183,7 @@ def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
         imported and gets its full options (the others are listed by name and help line);
         when None every command module is imported.
     """
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="qcorr",
         description=(
             "Harmonic quantum corrections for classical MD: trajectory -> vibrational "
@@ -138,7 +193,7 @@ def build_parser(argv: Sequence[str] | None = None) -> argparse.ArgumentParser:
         ),
     )
     parser.add_argument("--version", action="version", version=f"qcorr {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True, parser_class=_Parser)
     for module in _commands_for(argv):
         p = sub.add_parser(
             module.NAME,
@@ -182,7 +237,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``qcorr`` console script."""
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser(argv)
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except UsageError as err:
+        print(f"qcorr: error: {err}", file=sys.stderr)
+        return err.exit_code
     args.command_line = shlex.join(["qcorr", *argv])
     warnings.showwarning = _show_warning
     try:

@@ -3,9 +3,6 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
-
-from qcorr.errors import ConfigError
 
 NAME = "combine"
 HELP = "join the block files of 'qcorr spectrum --block I-of-N' into one spectrum file"
@@ -30,16 +27,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run ``qcorr combine``; returns the exit status."""
     from qcorr.cli.spectrum_report import write_with_report
-    from qcorr.safe_write import check_writable
+    from qcorr.safe_write import check_output
     from qcorr.spectra.blocks import combine_blocks
     from qcorr.spectra.diagnostics import announce, diagnose
     from qcorr.spectra.spectrum_file import read_spectrum
 
-    out = Path(args.output).resolve()
-    for name in args.blocks:
-        if Path(name).resolve() == out:
-            raise ConfigError(f"--output {args.output} is also a block file; choose another name")
-    check_writable(args.output)
+    check_output(args.output, "--output", args.blocks)
     datasets = [read_spectrum(name) for name in args.blocks]
     combined = combine_blocks(datasets, list(args.blocks), getattr(args, "command_line", "qcorr combine"))
     checks = diagnose(combined)

@@ -12,10 +12,11 @@ import math
 import sys
 from pathlib import Path
 
+from qcorr.cli.option_types import finite_number
 from qcorr.errors import ConfigError
 from qcorr.outputs import summary, table
-from qcorr.safe_write import atomic_path
-from qcorr.spectra.spectrum_file import read_spectrum
+from qcorr.safe_write import check_output
+from qcorr.spectra.spectrum_file import read_spectrum, write_netcdf_atomic
 from qcorr.thermo import twophase_table
 from qcorr.thermo.hard_sphere_gas import GAS_VOLUME_CHOICES, HARD_SPHERE_FORMS
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES
@@ -62,7 +63,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="translational zero-frequency value from the spectrum S(0) (default) or "
                              "from the mean-square-displacement diffusion coefficient; both are "
                              "always reported")
-    parser.add_argument("--viscosity", metavar="PA_S", type=float, default=None,
+    parser.add_argument("--viscosity", metavar="PA_S", type=finite_number, default=None,
                         help="shear viscosity in Pa s: add the Yeh-Hummer finite-size correction "
                              "2.837297 kT/(6 pi eta L) (cubic box, L = volume^(1/3)) to the "
                              "self-diffusion coefficient before 2PT (default: none, the periodic "
@@ -72,7 +73,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "w x r (default; non-negative) or the difference spectrum vdos - "
                              "translation - rotation (negative near zero frequency by the "
                              "rotational S(0)); both integrate to the vibrational dof")
-    parser.add_argument("--volume", metavar="A3", type=float, default=None,
+    parser.add_argument("--volume", metavar="A3", type=finite_number, default=None,
                         help="system volume in cubic angstrom (default: the mean box volume of the "
                              "spectrum file)")
     parser.add_argument("--md-energy", metavar="GROUP=KJ_PER_MOL", action="extend", nargs="+",
@@ -123,7 +124,8 @@ def run(args: argparse.Namespace) -> int:
     spectrum_path = Path(args.spectrum)
     output = table.check_output_path(args.output, [spectrum_path])
     if args.split_output is not None:
-        table.check_output_path(args.split_output, [spectrum_path], "--split-output")
+        check_output(args.split_output, "--split-output", [spectrum_path],
+                     [output, table.sidecar_path(output), table.schema_path(output)])
     default_sigma, sigma_per = parse_symmetry_numbers(args.symmetry_number)
     options = {
         "groups": args.groups, "symmetry_number": default_sigma, "group_symmetry_numbers": sigma_per,
@@ -142,8 +144,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"qcorr: {twophase_table.diffusion_summary(name, info)}", file=sys.stderr)
     if args.split_output is not None:
         split = twophase_table.two_phase_split_spectra(ds, **options)
-        with atomic_path(args.split_output) as tmp:
-            split.to_netcdf(tmp, engine="h5netcdf")
+        write_netcdf_atomic(split, args.split_output, option="--split-output")
     table.write_table(frame, output)
     if not args.quiet:
         print(summary.summary_text(frame, "2PT values per mole of molecules."))

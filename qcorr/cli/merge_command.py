@@ -8,7 +8,7 @@ from __future__ import annotations
 import argparse
 
 from qcorr.outputs import summary, table
-from qcorr.safe_write import write_text_atomic
+from qcorr.safe_write import check_output, write_text_atomic
 
 NAME = "merge"
 HELP = "concatenate property tables (CSV + JSON sidecar) of many systems into one"
@@ -36,13 +36,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    output = table.check_output_path(args.output, args.tables)
-    for path in args.tables:  # refuse merging a table's own sidecar, too
-        table.check_output_path(args.output, [table.sidecar_path(path)])
+    inputs = [*args.tables, *(table.sidecar_path(path) for path in args.tables)]
+    output = table.check_output_path(args.output, inputs)
+    written = [output, table.sidecar_path(output), table.schema_path(output)]
     extra = {"--summary-markdown": args.summary_markdown, "--summary-html": args.summary_html}
     for option, path in extra.items():
         if path is not None:
-            table.check_output_path(path, [*args.tables, output], option)
+            check_output(path, option, inputs, written)
+            written.append(path)
     frame = table.merge_tables(args.tables)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs}
     pages = {
@@ -52,7 +53,7 @@ def run(args: argparse.Namespace) -> int:
     texts = {path: render(frame) for path, render in pages.items() if path is not None}
     table.write_table(frame, output)
     for path, text in texts.items():
-        write_text_atomic(path, text)
+        write_text_atomic(path, text, "--summary-markdown" if path == args.summary_markdown else "--summary-html")
     print(f"merged {len(frame)} rows from {len(args.tables)} tables into {output} "
           f"and {table.sidecar_path(output)}")
     return 0

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import argparse
+from pathlib import Path
 
+from qcorr.cli.option_types import finite_number
 from qcorr.errors import ConfigError
 
 NAME = "plot"
@@ -28,7 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="write the cumulative corrections here (.svg, .png or .pdf)",
     )
     parser.add_argument(
-        "--temperature", type=float, metavar="K", default=None,
+        "--temperature", type=finite_number, metavar="K", default=None,
         help="temperature in K of the weighting functions (default: the temperature stored "
         "in the spectrum file; another value assumes the modes stay harmonic)",
     )
@@ -43,7 +45,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "per mole of its atoms, or for the whole simulated system (J/K, kJ)",
     )
     parser.add_argument(
-        "--max-wavenumber", type=float, metavar="CM-1", default=None,
+        "--max-wavenumber", type=finite_number, metavar="CM-1", default=None,
         help="upper end of the wavenumber axis in cm^-1 (default: where the total spectrum "
         "holds 99.9%% of its weight, plus 15%%)",
     )
@@ -51,6 +53,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from qcorr.outputs import figures
+    from qcorr.safe_write import check_output
     from qcorr.spectra.spectrum_file import read_spectrum
 
     wanted = [(option, path) for option, path in (("--spectrum-figure", args.spectrum_figure),
@@ -62,6 +65,9 @@ def run(args: argparse.Namespace) -> int:
         )
     for option, path in wanted:
         figures.figure_format(path, option)
+        check_output(path, option, [args.spectrum])
+    if len(wanted) == 2 and Path(wanted[0][1]).absolute() == Path(wanted[1][1]).absolute():
+        raise ConfigError(f"--spectrum-figure and --cumulative-figure are both '{wanted[0][1]}'; give two names")
     ds = read_spectrum(args.spectrum)
     drawn = []  # every figure is drawn (and its options checked) before any is written
     for option, path in wanted:

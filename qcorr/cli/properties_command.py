@@ -10,6 +10,7 @@ import argparse
 import math
 from pathlib import Path
 
+from qcorr.cli.option_types import finite_number
 from qcorr.errors import ConfigError
 from qcorr.outputs import summary, table
 from qcorr.spectra.spectrum_file import read_spectrum
@@ -40,7 +41,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--system", metavar="ID", default=None,
                         help="system identifier for the table (default: the spectrum file's name "
                              "without extension)" + _NO_AUTO_DEFAULT)
-    parser.add_argument("--temperatures", metavar="K", type=float, nargs="+", default=None,
+    parser.add_argument("--temperatures", metavar="K", type=finite_number, nargs="+", default=None,
                         help="temperatures in K at which to evaluate the spectrum (default: the "
                              "spectrum's temperature; others are harmonic extrapolations)" + _NO_AUTO_DEFAULT)
     parser.add_argument("--properties", metavar="NAME", nargs="+", default=None,
@@ -54,7 +55,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         nargs="+", default=[],
                         help="wavenumbers in cm-1 of the bonds constrained in the MD, per molecule "
                              "of GROUP; reported on separate rows (method frozen_bond_addon)" + _NO_AUTO_DEFAULT)
-    parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=float,
+    parser.add_argument("--zero-frequency-threshold", metavar="FRACTION", type=finite_number,
                         default=DEFAULT_ZERO_FREQUENCY_THRESHOLD,
                         help="a group diffuses when S(0) exceeds this fraction of dof/<wavenumber> "
                              "(and 3 standard errors); its absolute entropy and free energy are refused")

@@ -8,9 +8,8 @@ its ``save``.
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
-from qcorr.errors import ConfigError
+from qcorr.cli.option_types import count, finite_number, frame_index
 
 NAME = "spectrum"
 HELP = "trajectory with velocities (or positions) -> vibrational density of states file (NetCDF)"
@@ -55,11 +54,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                     "in ps; required for formats without time stamps (DCD, XYZ, ...), else checked against them")
 
     frames = parser.add_argument_group("frames")
-    frames.add_argument("--start", type=int, default=None, metavar="N",
+    frames.add_argument("--start", type=frame_index, default=None, metavar="N",
                         help="first trajectory frame used (0-based frame index); None: the first")
-    frames.add_argument("--stop", type=int, default=None, metavar="N",
+    frames.add_argument("--stop", type=frame_index, default=None, metavar="N",
                         help="frame index to stop before; None: the end of the trajectory")
-    frames.add_argument("--step", type=int, default=1, metavar="N",
+    frames.add_argument("--step", type=count, default=1, metavar="N",
                         help="use every N-th frame (frames), the time step becomes N times longer")
     frames.add_argument("--velocities-from", choices=("stored", "positions"), default="stored",
                         help="stored: velocities saved in the trajectory (A/ps after MDAnalysis' "
@@ -70,7 +69,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         "step of stored positions in A (read from XTC files, else detected or 0)")
 
     system = parser.add_argument_group("system")
-    system.add_argument("--temperature", type=float, required=True, metavar="K",
+    system.add_argument("--temperature", type=finite_number, required=True, metavar="K",
                         help="temperature of the simulation in kelvin, used in 2/kT")
     system.add_argument("--allow-temperature-mismatch", action="store_true", help="compute even if a group's "
                         "kinetic temperature differs from --temperature by more than a factor of 2 (K/K)")
@@ -97,10 +96,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="with --molecular: a molecule is a residue, or a bonded fragment")
 
     est = parser.add_argument_group("estimator")
-    est.add_argument("--segment-ps", type=float, default=5.0, metavar="PS",
+    est.add_argument("--segment-ps", type=finite_number, default=5.0, metavar="PS",
                      help="segment length in ps (rounded to an even number of frames); the "
                           "resolution is 1/segment length")
-    est.add_argument("--overlap", type=float, default=0.5, metavar="FRACTION",
+    est.add_argument("--overlap", type=finite_number, default=0.5, metavar="FRACTION",
                      help="fraction of a segment shared by consecutive segments, 0 <= f < 1")
     est.add_argument("--taper", choices=("hann", "none"), default="hann",
                      help="taper applied to each segment before the transform")
@@ -109,7 +108,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     run.add_argument("--block", default=None, metavar="I-of-N",
                      help="compute only block I (1-based) of N contiguous frame blocks; "
                           "join the N block files with 'qcorr combine'")
-    run.add_argument("--threads", type=int, default=1, metavar="N",
+    run.add_argument("--threads", type=count, default=1, metavar="N",
                      help="cores to use (count): a long frame window (at least 2e7 atom-frames) "
                           "is split over N processes in parts of whole segments, joined as "
                           "'qcorr combine' joins blocks (equal to one process up to rounding); "
@@ -123,7 +122,7 @@ def run(args: argparse.Namespace) -> int:
     from qcorr.cli.spectrum_report import write_with_report
     from qcorr.reading.options import parse_block, parse_key_values, parse_option_value
     from qcorr.reading.universe import open_trajectory
-    from qcorr.safe_write import check_writable
+    from qcorr.safe_write import check_output
     from qcorr.spectra.analysis import VibrationalSpectrum, check_settings
 
     block = parse_block(args.block)
@@ -131,10 +130,7 @@ def run(args: argparse.Namespace) -> int:
                    taper=args.taper, velocities_from=args.velocities_from, molecules=args.molecules,
                    block=block, fft_threads=args.threads, position_precision=args.position_precision,
                    frame_spacing_ps=args.frame_spacing)
-    for name in [args.topology, *args.trajectory]:
-        if Path(name).resolve() == Path(args.output).resolve():
-            raise ConfigError(f"--output {args.output} is also an input file; choose another name")
-    check_writable(args.output)
+    check_output(args.output, "--output", [args.topology, *args.trajectory])
     reader_options = {k: parse_option_value(v)
                       for k, v in parse_key_values(args.reader_option, "--reader-option").items()}
     masses = parse_key_values(args.mass, "--mass")

@@ -185,9 +185,16 @@ def cumulative_corrections(
     for name in CUMULATIVE_PROPERTIES:
         prop = weights.get_property(name)
         delta = np.zeros_like(u)
-        delta[positive] = prop.correction(u[positive])  # limit u -> 0 of every correction is 0
-        modes = cumulative_trapezoid(density * delta, wavenumber, initial=0.0)
-        running = to_physical(modes, prop, temperature_K, basis, molecules, atoms)
+        with np.errstate(over="ignore", invalid="ignore", under="ignore"):  # checked below
+            delta[positive] = prop.correction(u[positive])  # limit u -> 0 of every correction is 0
+            modes = cumulative_trapezoid(density * delta, wavenumber, initial=0.0)
+            running = to_physical(modes, prop, temperature_K, basis, molecules, atoms)
+        if not np.all(np.isfinite(running)):
+            raise PhysicsError(
+                f"--temperature {temperature_K:g}: the cumulative {name} correction of group '{group}' is "
+                "not representable in double precision at this temperature; give a temperature nearer "
+                f"the spectrum's {float(ds.attrs['temperature_K']):g} K"
+            )
         out[name] = ("wavenumber", running)
         out[name].attrs = {
             "units": unit_of(prop, basis),
@@ -242,7 +249,7 @@ def save_figure(figure: Figure, path: str | os.PathLike[str], *, option: str = "
         metadata.pop("Date")
     with (
         matplotlib.rc_context({"svg.hashsalt": "qcorr", "svg.fonttype": "path"}),
-        atomic_path(path) as tmp,
+        atomic_path(path, option) as tmp,
     ):
         figure.savefig(tmp, format=fmt, metadata=metadata, dpi=150)
     return Path(path)

@@ -39,7 +39,7 @@ import pandas as pd
 
 from qcorr import __version__, units
 from qcorr.errors import ConfigError, QcorrError
-from qcorr.safe_write import atomic_path
+from qcorr.safe_write import check_output, write_files_atomic
 
 #: value of ``qcorr_file_kind`` in a table's JSON sidecar
 FILE_KIND = "property_table"
@@ -242,12 +242,19 @@ def library_versions() -> dict[str, str]:
 def check_output_path(
     output: str | os.PathLike[str], inputs: Sequence[str | os.PathLike[str]], option: str = "--output"
 ) -> Path:
-    """Refuse an output (or its sidecar) that would overwrite an input file.
+    """Check, before any computation, the table, its sidecar and its schema as outputs.
+
+    None of the three may be an input, and each must be writable as a regular file
+    (:func:`qcorr.safe_write.check_output`).
 
     Raises
     ------
     ConfigError
-        Naming the option and the input file, if the table or its JSON sidecar is an input.
+        Naming the option and the input file, if the table or its JSON sidecar is an input,
+        or if the name ends in ``.json``.
+    OutputError
+        If one of the three cannot be written there (a directory, symbolic link or other
+        special file in its place, read-only, no space, ...).
     """
     output = Path(output)
     if output.suffix.lower() == ".json":
@@ -262,6 +269,9 @@ def check_output_path(
                 f"{option} '{output}' would overwrite the input '{item}' (or write its sidecar "
                 "over it); choose another output name"
             )
+    for path, role in ((output, option), (sidecar_path(output), f"{option} (its sidecar)"),
+                       (schema_path(output), f"{option} (its schema)")):
+        check_output(path, role, inputs)
     return output
 
 
@@ -305,6 +315,8 @@ def write_table(
         If the columns are not :data:`TABLE_COLUMNS`.
     TypeError, ValueError
         If the provenance is not JSON-serialisable (NaN included); nothing is written.
+    OutputError
+        If a file cannot be written (:func:`qcorr.safe_write.write_files_atomic`); none is.
     """
     if tuple(frame.columns) != TABLE_COLUMNS:
         raise QcorrError(
@@ -326,11 +338,8 @@ def write_table(
     text = json.dumps(sidecar, indent=2, sort_keys=False, default=_json_default, allow_nan=False)
     schema = json.dumps(table_schema(), indent=2)
     path = Path(path)
-    with (atomic_path(path) as tmp_csv, atomic_path(sidecar_path(path)) as tmp_json,
-          atomic_path(schema_path(path)) as tmp_schema):
-        tmp_csv.write_bytes(csv_bytes)
-        tmp_json.write_text(text + "\n", encoding="utf-8")
-        tmp_schema.write_text(schema + "\n", encoding="utf-8")
+    write_files_atomic({path: csv_bytes, sidecar_path(path): (text + "\n").encode("utf-8"),
+                        schema_path(path): (schema + "\n").encode("utf-8")})
     return path
 
 

@@ -4,7 +4,9 @@ The SHA-256 (FIPS 180-4, via :mod:`hashlib`) of a large trajectory costs about a
 of reading it with MDAnalysis; :class:`FileDescriptions` computes it in a background
 thread while the frames are read.  A frame-block job (``--block I-of-N``) hashes only
 the I-th of N equal byte ranges of each file, so N blocks hash every file once between
-them; ``qcorr combine`` checks that the ranges cover every file.
+them, plus a fixed sample of the whole file that every block hashes alike
+(:func:`sample_digest`); ``qcorr combine`` checks that the ranges cover every file and
+that the samples agree.
 """
 
 from __future__ import annotations
@@ -22,6 +24,7 @@ __all__ = [
     "byte_range_of_part",
     "describe_files",
     "name_and_size",
+    "sample_digest",
     "start_describing_files",
 ]
 
@@ -99,8 +102,58 @@ def describe_files(
         else:
             record["sha256_parts"] = [{"first_byte": first, "stop_byte": stop,
                                        "sha256": digest.hexdigest()}]
+            record["sha256_sample"] = sample_digest(path, size)
         records.append(record)
     return records
+
+
+#: chunks and chunk size of :func:`sample_digest` (256 x 64 KiB = 16 MiB per file)
+SAMPLE_CHUNKS = 256
+SAMPLE_CHUNK_BYTES = 1 << 16
+
+
+def sample_digest(path: str | os.PathLike[str], size: int) -> str:
+    """SHA-256 of a fixed sample of a file's bytes, the same for every frame-block job.
+
+    A block job hashes only its own byte range of each input (``sha256_parts``), so two
+    block files made from different trajectories of the same name and size have nothing
+    in common to compare.  Every block job therefore also hashes the same sample of the
+    whole file: :data:`SAMPLE_CHUNKS` chunks of :data:`SAMPLE_CHUNK_BYTES` bytes starting at
+    ``floor(k (size - chunk) / (SAMPLE_CHUNKS - 1))``, k = 0 .. SAMPLE_CHUNKS - 1 (first and
+    last bytes included), or the whole file when it is no larger than the sample.
+    ``qcorr combine`` requires equal samples.  Two different MD runs differ in nearly every
+    frame and so in the sample; files that differ only between the sampled chunks are not
+    told apart (the ``sha256_parts`` still record exactly what each block read).
+
+    Raises
+    ------
+    TrajectoryError
+        If the file cannot be read or became shorter (names the file).
+    """
+    path = Path(path)
+    digest = hashlib.sha256()
+    chunk = SAMPLE_CHUNK_BYTES
+    if size <= SAMPLE_CHUNKS * chunk:
+        ranges = [(0, size)]
+    else:
+        ranges = [((k * (size - chunk)) // (SAMPLE_CHUNKS - 1), chunk) for k in range(SAMPLE_CHUNKS)]
+    try:
+        with path.open("rb") as handle:
+            for first, length in ranges:
+                handle.seek(first)
+                data = handle.read(length)
+                if len(data) != length:
+                    raise TrajectoryError(
+                        f"'{path}' became shorter while its SHA-256 was computed ({size} bytes when "
+                        "started); do not change input files while qcorr reads them"
+                    )
+                digest.update(data)
+    except OSError as err:
+        raise TrajectoryError(
+            f"cannot read '{path}' to record its SHA-256 ({err.strerror or err}); check that the "
+            "file exists and is readable"
+        ) from None
+    return digest.hexdigest()
 
 
 class FileDescriptions:

@@ -33,6 +33,7 @@ import numpy as np
 
 from qcorr.constants import femtosecond_s, picosecond_s
 from qcorr.errors import ConfigError, TrajectoryError
+from qcorr.reading.reader_options import check_reader_options
 
 __all__ = [
     "LAMMPS_DUMP_SUFFIXES",
@@ -323,6 +324,8 @@ def open_trajectory(
     top = Path(topology)
     trajs = [Path(t) for t in trajectories]
     for path in [top, *trajs]:
+        if path.is_dir():
+            raise TrajectoryError(f"input file '{path}' is a directory; give the file in it")
         if not path.is_file():
             raise TrajectoryError(f"input file '{path}' does not exist; check the path")
     if lammps_units is not None and lammps_units not in LAMMPS_UNIT_STYLES:
@@ -346,6 +349,8 @@ def open_trajectory(
                 f"as --reader-option dt=VALUE (in {'fs' if lammps_units == 'real' else 'ps'} "
                 f"for units {lammps_units})"
             )
+    check_reader_options(options, top, trajs, top_format,
+                         next(iter(traj_formats)) if len(traj_formats) == 1 else None)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # guesser chatter; masses are validated later
@@ -369,10 +374,11 @@ def open_trajectory(
 
 
 def check_complete(trajectory) -> None:
-    """Detect a GROMACS XDR file (TRR/XTC) or LAMMPS dump that ends inside a frame.
+    """Detect a GROMACS XDR file (TRR/XTC), DCD file or LAMMPS dump that ends inside a frame.
 
     MDAnalysis indexes XDR files by scanning frame headers and silently ignores a partial
-    last frame; here the end of the last complete frame is compared with the file size.
+    last frame; here the end of the last complete frame is compared with the file size
+    (for DCD, whose frames have a fixed size, the header and frame sizes give that end).
     A LAMMPS dump is read on past its last complete frame.  Other readers are not checked.
 
     Parameters
@@ -401,10 +407,33 @@ def check_complete(trajectory) -> None:
                     "its complete frames"
                 )
             continue
+        dcd = getattr(reader, "_file", None)
+        if type(reader).__name__ == "DCDReader" and hasattr(dcd, "_framesize") and reader.n_frames:
+            # MDAnalysis counts the whole frames that fit the file and drops the rest
+            end = dcd._header_size + dcd._firstframesize + (reader.n_frames - 1) * dcd._framesize
+            size = os.path.getsize(reader.filename)
+            if size > end:
+                raise TrajectoryError(
+                    f"'{reader.filename}' ends with an incomplete frame after frame {reader.n_frames - 1} "
+                    f"({size - end} bytes left over); the file is truncated or corrupt: copy it again, "
+                    "or trim it to the complete frames"
+                )
+            continue
         xdr = getattr(reader, "_xdr", None)
         if xdr is None or not hasattr(xdr, "_bytes_tell"):
             continue
-        reader[reader.n_frames - 1]
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # MDAnalysis' "seek failed" before it gives up
+                reader[reader.n_frames - 1]
+        except OSError as err:  # the last frame's header is whole but its body is cut
+            message = (
+                f"'{reader.filename}' ends inside frame {reader.n_frames - 1} ({first_line(err)}); the "
+                "file is truncated or corrupt: copy it again, or trim it to the complete frames "
+                "(e.g. gmx trjconv -e)"
+            )
+            release_quietly(err)
+            raise TrajectoryError(message) from None
         end = int(xdr._bytes_tell())
         size = os.path.getsize(reader.filename)
         reader[0]

@@ -78,6 +78,7 @@ from qcorr.spectra.raw_vdos import raw_spectra
 from qcorr.spectra.reading_checks import ReadingChecks
 from qcorr.spectra.run_plan import RunPlan, check_settings, plan_run
 from qcorr.spectra.spectrum_file import write_spectrum
+from qcorr.spectra.stated_temperature import check_stated_temperature
 
 __all__ = ["VibrationalSpectrum", "check_settings"]
 
@@ -539,8 +540,14 @@ class VibrationalSpectrum(AnalysisBase):
             excluded_atoms=self._channels.note, **self._checks.attributes(),
         )
         self._checks.before_assembly(self.results.spectrum_parts)
-        ds = spectrum_from_parts(self.results.spectrum_parts, group_table(self._groups), attrs)
+        table = group_table(self._groups)
+        parts = self.results.spectrum_parts
+        ds = spectrum_from_parts(parts, table, attrs)
         self._checks.after_assembly(ds)
+        if not self._checks.allow_temperature_mismatch:
+            total = list(table["group"]).index("total")
+            check_stated_temperature(parts.raw_segments[total], parts.wavenumber,
+                                     float(table["degrees_of_freedom"][total]), self._temperature)
         checks = diagnose(ds)
         del self.results["spectrum_parts"]
         self.results.spectrum = ds

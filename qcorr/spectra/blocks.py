@@ -34,6 +34,7 @@ from qcorr.spectra.spectrum_file import (
     json_attribute,
     raw_segments_of,
 )
+from qcorr.spectra.stated_temperature import check_stated_temperature
 
 __all__ = [
     "combine_blocks",
@@ -157,11 +158,14 @@ def _same(values: list, what: str, names: list[str]) -> None:
 def combine_file_records(records: list, names: list[str]) -> list[dict]:
     """Join the input-file records of N block files into one record per file.
 
-    Each block job hashes its own share of every input file (``sha256_parts``, see
-    :func:`qcorr.reading.input_files.describe_files`); the joined record lists the parts of all
-    blocks in block order.  The blocks must name the same files with the same sizes and
-    their parts must cover each file from its first to its last byte without gap or
-    overlap.  Records of files hashed whole (``sha256``) must be identical.
+    Each block job hashes its own share of every input file (``sha256_parts``) and the
+    same sample of the whole file (``sha256_sample``, see
+    :func:`qcorr.reading.input_files.describe_files`); the joined record lists the parts of
+    all blocks in block order.  The blocks must list the same number of files, each with
+    the same size and the same ``sha256_sample`` (their names may differ: a copy of a file
+    is the same input), and their parts must cover each file from its first to its last
+    byte without gap or overlap.  Records of files hashed whole (``sha256``) must have
+    equal hashes.
 
     Parameters
     ----------
@@ -173,26 +177,25 @@ def combine_file_records(records: list, names: list[str]) -> list[dict]:
     Raises
     ------
     SpectrumFileError
-        Different files or sizes, or parts that do not cover a file.
+        Different files (sizes or hashes), a record without hashes, or parts that do not
+        cover a file.
     """
     first = records[0]
-    for record, name in zip(records[1:], names[1:]):
-        same = isinstance(record, list) and len(record) == len(first) and all(
-            isinstance(a, dict) and a.get("name") == b.get("name") and a.get("size_bytes") == b.get("size_bytes")
-            for a, b in zip(record, first)
-        )
-        if not same:
+    for record, name in zip(records, names):
+        if not (isinstance(record, list) and len(record) == len(first)
+                and all(isinstance(entry, dict) for entry in record)):
             raise SpectrumFileError(
-                f"block '{name}' was computed from other input files (names or sizes) than block "
-                f"'{names[0]}'; combine only the blocks of one 'qcorr spectrum --block I-of-N' set"
+                f"block '{name}' lists other input files than block '{names[0]}'; combine only the "
+                "blocks of one 'qcorr spectrum --block I-of-N' set"
             )
     joined = []
     for k, entry in enumerate(first):
+        entries = [record[k] for record in records]
+        _same_input(entries, names)
         if "sha256_parts" not in entry:
-            _same([r[k] for r in records], f"input file record of '{entry.get('name')}'", names)
             joined.append(dict(entry))
             continue
-        parts = [part for r in records for part in r[k].get("sha256_parts", [])]
+        parts = [part for e in entries for part in e.get("sha256_parts", [])]
         position = 0
         for part in parts:
             if part.get("first_byte") != position:
@@ -204,15 +207,42 @@ def combine_file_records(records: list, names: list[str]) -> list[dict]:
                 f"its {entry['size_bytes']} bytes once in order; the block files come from "
                 "different runs"
             )
-        joined.append({"name": entry["name"], "size_bytes": entry["size_bytes"], "sha256_parts": parts})
+        joined.append({"name": entry["name"], "size_bytes": entry["size_bytes"],
+                       "sha256_sample": entry["sha256_sample"], "sha256_parts": parts})
     return joined
+
+
+def _same_input(entries: list[dict], names: list[str]) -> None:
+    """The k-th input of every block is one file: same size and the same whole or sampled hash."""
+    first = entries[0]
+    key = "sha256" if "sha256" in first else "sha256_sample"
+    for entry, name in zip(entries, names):
+        if key not in entry or not entry[key]:
+            raise SpectrumFileError(
+                f"block '{name}' records no SHA-256 of its input '{entry.get('name')}' (made by an "
+                "older qcorr, or without hashing); remake the blocks with this qcorr's 'qcorr spectrum "
+                "--block I-of-N'"
+            )
+    what = "SHA-256" if key == "sha256" else "SHA-256 of sampled bytes"
+    for entry, name in zip(entries[1:], names[1:]):
+        if entry.get("size_bytes") != first.get("size_bytes"):
+            difference = f"sizes differ ({entry.get('size_bytes')} and {first.get('size_bytes')} bytes)"
+        elif entry[key] != first[key]:
+            difference = f"same size ({entry.get('size_bytes')} bytes), different {what}"
+        else:
+            continue
+        raise SpectrumFileError(
+            f"block '{name}' was computed from another input than block '{names[0]}': its "
+            f"'{entry.get('name')}' and their '{first.get('name')}' are different files ({difference}); "
+            "combine only the blocks of one trajectory"
+        )
 
 
 def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: str) -> xr.Dataset:
     """Rebuild the single-job spectrum from the frame-block files of one run.
 
-    The blocks must come from the same inputs (names and sizes; their SHA-256 parts must
-    cover every file), settings and groups, with block indices 1..N each present once
+    The blocks must come from the same inputs (sizes and SHA-256 samples equal; their
+    SHA-256 parts must cover every file), settings and groups, with block indices 1..N each present once
     and their segments covering the frame window without gap or repeat.  Their parts
     (:func:`spectrum_parts_of`) are joined (:func:`join_spectrum_parts`) and the
     spectrum is built again (:func:`qcorr.spectra.assemble.spectrum_from_parts`), which
@@ -261,6 +291,10 @@ def combine_blocks(datasets: list[xr.Dataset], names: list[str], command_line: s
     table = {"group": first["group"].values}
     table.update({name: first[name].values for name in GROUP_TABLE})
     attrs = dict(first.attrs)
+    total = [str(g) for g in table["group"]].index("total")
+    if not int(attrs.get("temperature_mismatch_allowed", 0)):
+        check_stated_temperature(joined.raw_segments[total], joined.wavenumber,
+                                 float(table["degrees_of_freedom"][total]), float(attrs["temperature_K"]))
     attrs.update(block_index=1, block_count=1, command_line=command_line,
                  input_files=json.dumps(input_files),
                  combined_from=json.dumps([{"name": Path(n).name, "block_index": int(ds.attrs["block_index"])}

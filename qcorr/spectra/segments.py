@@ -129,7 +129,7 @@ class SpectrumSettings:
 
 
 def segment_frames_for(segment_ps: float, timestep_ps: float) -> int:
-    """Frames per segment for a segment length in ps: the nearest even count, at least 4.
+    """Frames per segment for a segment length in ps: the nearest even count (at least 4).
 
     Parameters
     ----------
@@ -141,13 +141,36 @@ def segment_frames_for(segment_ps: float, timestep_ps: float) -> int:
     Raises
     ------
     ConfigError
-        If either value is not positive and finite.
+        If either value is not positive and finite, or the segment is shorter than 4 frames.
+    SamplingError
+        If the segment holds more than 2^53 frames.
     """
     for name, value in (("--segment-ps", segment_ps), ("time step", timestep_ps)):
         if not (math.isfinite(value) and value > 0):
             raise ConfigError(f"{name} must be positive and finite, got {value} ps")
-    frames = 2 * round(segment_ps / timestep_ps / 2.0)
-    return max(4, int(frames))
+    ratio = segment_ps / timestep_ps
+    if not ratio < _MOST_SEGMENT_FRAMES:  # also inf (overflow of the division)
+        raise SamplingError(
+            f"--segment-ps {segment_ps:g}: a segment of {segment_ps:g} ps holds more than "
+            f"{_MOST_SEGMENT_FRAMES:.0e} frames of {timestep_ps:g} ps, more than any trajectory; "
+            "give the segment length in ps (e.g. 5)"
+        )
+    frames = 2 * round(ratio / 2.0)
+    if frames < _FEWEST_SEGMENT_FRAMES:
+        raise ConfigError(
+            f"--segment-ps {segment_ps:g}: a segment needs at least {_FEWEST_SEGMENT_FRAMES} frames, "
+            f"{_FEWEST_SEGMENT_FRAMES * timestep_ps:g} ps at the frame spacing of {timestep_ps:g} ps; "
+            "give a longer --segment-ps"
+        )
+    return int(frames)
+
+
+#: fewest frames of a segment (two frequencies besides zero and Nyquist)
+_FEWEST_SEGMENT_FRAMES = 4
+
+
+#: more frames per segment than any trajectory holds (2^53: counts up to here are exact doubles)
+_MOST_SEGMENT_FRAMES = float(2**53)
 
 
 def segment_starts(n_frames: int, settings: SpectrumSettings) -> NDArray[np.int64]:

@@ -21,7 +21,7 @@ import xarray as xr
 
 from qcorr import units
 from qcorr.errors import SpectrumFileError
-from qcorr.safe_write import atomic_path
+from qcorr.safe_write import write_bytes_atomic
 
 __all__ = [
     "COMBINE_ATTRIBUTES",
@@ -37,6 +37,7 @@ __all__ = [
     "json_attribute",
     "raw_segments_of",
     "read_spectrum",
+    "write_netcdf_atomic",
     "write_spectrum",
 ]
 
@@ -185,7 +186,32 @@ def read_spectrum(path: str | os.PathLike[str]) -> xr.Dataset:
     return ds
 
 
-def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
+def write_netcdf_atomic(ds: xr.Dataset, path: str | os.PathLike[str], encoding: dict | None = None,
+                        option: str | None = None) -> Path:
+    """Write *ds* as NetCDF-4 (h5netcdf engine) to *path*: built in memory, then written atomically.
+
+    The HDF5 library is never given the target's file system: it builds the file image in
+    memory and qcorr writes the bytes (:func:`qcorr.safe_write.write_bytes_atomic`).  HDF5
+    writing to a full device can crash the process (a segmentation fault inside the library
+    left a ``.part`` file behind); a full device, a read-only file system or a missing
+    permission now give one :class:`~qcorr.errors.OutputError` line and nothing on disk.
+    Peak memory grows by the size of the file (compressed variables are compressed in
+    memory).  The same dataset gives the same bytes.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+    path : str or path-like
+    encoding : dict, optional
+        Per-variable encoding, as for :meth:`xarray.Dataset.to_netcdf`.
+    option : str, optional
+        The option that named *path*, for messages.
+    """
+    image = ds.to_netcdf(None, engine="h5netcdf", encoding=encoding or {})
+    return write_bytes_atomic(path, image, option)
+
+
+def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str], option: str | None = None) -> Path:
     """Write a spectrum dataset to NetCDF-4 (h5netcdf engine) atomically.
 
     The dataset is checked against the contract first, so an incomplete dataset
@@ -197,7 +223,10 @@ def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
     ds : xarray.Dataset
         Spectrum dataset (see ``DEVELOPERS.md``).
     path : str or path-like
-        Target file; replaced only once the new file is complete.
+        Target file; replaced only once the new file is complete (never a directory,
+        symbolic link or other non-regular file).
+    option : str, optional
+        The option that named *path*, for messages (e.g. ``"--output"``).
 
     Returns
     -------
@@ -208,6 +237,8 @@ def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
     ------
     SpectrumFileError
         If *ds* does not follow the contract.
+    OutputError
+        If the file cannot be written (see :func:`write_netcdf_atomic`).
     """
     check_spectrum(ds, "<dataset to be written to " + os.fspath(path) + ">")
     path = Path(path)
@@ -216,9 +247,7 @@ def write_spectrum(ds: xr.Dataset, path: str | os.PathLike[str]) -> Path:
     for name in ("vdos_segments", "vacf_segments_raw", "vdos"):
         if name in ds.variables:
             encoding[name] = {"zlib": True, "complevel": 4}
-    with atomic_path(path) as tmp:
-        ds.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
-    return path
+    return write_netcdf_atomic(ds, path, encoding, option)
 
 
 def provenance_attributes(ds: xr.Dataset) -> dict[str, str]:

@@ -54,7 +54,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from qcorr.errors import ConfigError, QcorrWarning
+from qcorr.errors import ConfigError, PhysicsError, QcorrWarning
 from qcorr.outputs.table import TableRow, rows_to_frame
 from qcorr.thermo.harmonic_rows import frozen_bond_rows, msd_rows, property_rows
 from qcorr.thermo.segment_statistics import segment_effective_count, segment_standard_error
@@ -217,21 +217,50 @@ def harmonic_property_rows(
         }
         cautions += _group_cautions(g, check, t0)
         for t in temps:
-            rows += property_rows(
-                g, system=system, temperature_K=t, spectrum_temperature_K=t0, properties=props,
-                md_values=md_values, k_eff=k_eff, check=check,
-            )
-            if include_msd:
-                rows += msd_rows(g, system=system, temperature_K=t, k_eff=k_eff, check=check,
-                                  spectrum_temperature_K=t0)
-            if g.name in frozen:
-                rows += frozen_bond_rows(g, frozen[g.name], system=system, temperature_K=t, properties=props)
+            # far from the spectrum's temperature a weight or a product may overflow; every
+            # value is checked below, so numpy's warnings would only repeat it less clearly
+            with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+                new = property_rows(
+                    g, system=system, temperature_K=t, spectrum_temperature_K=t0, properties=props,
+                    md_values=md_values, k_eff=k_eff, check=check,
+                )
+                if include_msd:
+                    new += msd_rows(g, system=system, temperature_K=t, k_eff=k_eff, check=check,
+                                    spectrum_temperature_K=t0)
+                if g.name in frozen:
+                    new += frozen_bond_rows(g, frozen[g.name], system=system, temperature_K=t, properties=props)
+            _check_representable(new, t0)
+            rows += new
     if any(not math.isclose(t, t0, rel_tol=1e-12) for t in temps):
         cautions.append(
             f"Temperature scan: the spectrum was measured at {t0:g} K; values at other temperatures "
             "assume it does not change with temperature (harmonic assumption)."
         )
     return PropertyResult(rows=rows, cautions=cautions, groups=info)
+
+
+def _check_representable(rows: list[TableRow], t0: float) -> None:
+    """Refuse rows with a value that is not finite (an undefined value is None, never NaN) or
+    an infinite standard error (NaN is one that is not defined: one segment): at such a
+    temperature the property is beyond double precision.
+
+    Raises
+    ------
+    PhysicsError
+        Naming ``--temperatures``, the temperature, the group and the property.
+    """
+    for row in rows:
+        for column in ("classical", "quantum", "correction", "classical_se", "quantum_se", "correction_se"):
+            value = getattr(row, column)
+            if value is None:
+                continue
+            is_value = column in ("classical", "quantum", "correction")
+            if (is_value and not math.isfinite(value)) or math.isinf(value):
+                raise PhysicsError(
+                    f"--temperatures {row.temperature_K:g}: the {row.property} of group '{row.group}' is "
+                    f"not representable in double precision at this temperature ({column} {value}); give "
+                    f"temperatures nearer the spectrum's {t0:g} K"
+                )
 
 
 def _group_cautions(g: GroupSpectrum, check: ZeroFrequencyCheck, t0: float) -> list[str]:

@@ -17,6 +17,7 @@ import numpy as np
 
 from qcorr import constants as C
 from qcorr import units
+from qcorr.errors import PhysicsError
 from qcorr.outputs.table import BASES, TableRow
 from qcorr.thermo.segment_statistics import normalised_segments, segment_standard_error
 from qcorr.thermo.spectrum_groups import GroupSpectrum, ZeroFrequencyCheck
@@ -148,12 +149,21 @@ def msd_rows(
     segments = normalised_segments(x, group.vdos_segments, float(np.trapezoid(group.vdos, x)))
     q_s, c_s = mean_square_displacement(x, segments, temperature_K, group.group_mass_g_mol)
     q, c = float(q), float(c)
+    if not (math.isfinite(c) and c > 0 and math.isfinite(q)):
+        raise PhysicsError(
+            f"--temperatures {temperature_K:g}: the mean-square displacement of group '{group.name}' is "
+            f"not representable in double precision at this temperature (classical {c:g}, quantum "
+            f"{q:g} A^2); give temperatures nearer the spectrum's {spectrum_temperature_K:g} K"
+        )
     note = "mass-weighted mean over the group's atoms of <|u|^2> (= 3 <u_x^2>)"
     ratio_note = "quantum / classical mean-square displacement"
     if not math.isclose(temperature_K, spectrum_temperature_K, rel_tol=1e-12):
         scan = f"; harmonic extrapolation of the spectrum measured at {spectrum_temperature_K:g} K"
         note += scan
         ratio_note += scan
+    if math.isnan(float(segment_standard_error(q_s, k_eff))):
+        note += "; one segment: no standard error"
+        ratio_note += "; one segment: no standard error"
     return [
         TableRow(
             property="mean_square_displacement", unit=units.AREA, classical=c, quantum=q,

@@ -118,6 +118,9 @@ def two_phase_rows(
                              classical_se=se(a_s), quantum_se=se(a_s + da_s),
                              correction_se=se(da_s), classical_source="md_value",
                              note="A = E - T S; E_MD error not included"))
+    if len(seg_results) < 2:  # the standard-error cells are empty; say why
+        for row in rows:
+            row.note = f"{row.note}; one segment: no standard error" if row.note else "one segment: no standard error"
     return rows
 
 
@@ -147,7 +150,10 @@ def model_checks(
             # it the hard-sphere Lorentzian tail exceeding a soft-potential spectrum is a
             # known feature of the model (Desjarlais, Phys. Rev. E 88, 062145 (2013))
             total = c.gas_dos + c.solid_dos
-            mean = np.trapezoid(wavenumber * total, wavenumber) / np.trapezoid(total, wavenumber)
+            weight = np.trapezoid(total, wavenumber)
+            if not weight > 0:  # an empty component (no such motion): nothing to compare
+                continue
+            mean = np.trapezoid(wavenumber * total, wavenumber) / weight
             low = wavenumber <= mean
             bad = low & (c.solid_dos < -3.0 * noise) & (c.solid_dos < 0)
             if bad.any():

@@ -250,7 +250,10 @@ def heat_capacity_quantum(u: ArrayLike) -> FloatArray:
     out[small] = 1.0 + _series(u[small], _C_HEAT)
     em = np.expm1(-u[mid])
     out[mid] = u[mid] ** 2 * np.exp(-u[mid]) / (em * em)
-    out[big] = _times_exp_minus(u[big] ** 2, u[big])
+    # (u e^-u/2)^2: u^2 itself overflows beyond u ~ 1e154 (and inf x 0 is NaN)
+    with np.errstate(under="ignore"):
+        root = u[big] * np.exp(-0.5 * u[big])
+    out[big] = root * root
     return out
 
 
