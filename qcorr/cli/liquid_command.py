@@ -8,11 +8,11 @@ spectra), :mod:`qcorr.outputs.table` writes and prints it.
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from pathlib import Path
 
-from qcorr.errors import ConfigError
+from qcorr.cli.liquid_options import parse_md_energies, parse_mixtures, parse_symmetry_numbers
+from qcorr.cli.properties_command import parse_frozen_bonds
 from qcorr.outputs import summary, table
 from qcorr.safe_write import atomic_path
 from qcorr.spectra.spectrum_file import read_spectrum
@@ -79,44 +79,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         default=[],
                         help="mean total (kinetic + potential) MD energy of the group per mole of "
                              "its molecules, kJ/mol; makes energy and free energy absolute")
+    parser.add_argument("--mixture", metavar="NAME=GROUP1,GROUP2,...", action="extend", nargs="+", default=[],
+                        help="groups (one kind of molecule each) that together form a liquid mixture: "
+                             "each is evaluated at the total density and rows NAME (per mole of all "
+                             "their molecules) add the ideal mixing entropy")
+    parser.add_argument("--temperatures", metavar="K", type=float, nargs="+", default=None,
+                        help="temperature scan in K: at each other temperature, only the quantum "
+                             "corrections of the solid-like parts (spectrum of the MD temperature)")
+    parser.add_argument("--frozen-bond-wavenumbers", metavar="GROUP=W1,W2,...", action="extend", nargs="+",
+                        default=[], help="wavenumbers in cm-1 of the bonds constrained in the MD (rigid "
+                                         "models), per molecule of GROUP: rows of method frozen_bond_addon")
     parser.add_argument("--split-output", metavar="SPLIT.nc", default=None,
                         help="also write the gas-like and solid-like spectra of every component "
                              "(NetCDF, cm per cm-1)")
     parser.add_argument("--quiet", action="store_true", help="do not print the table")
-
-
-def parse_symmetry_numbers(items: list[str]) -> tuple[int | None, dict[str, int]]:
-    """``N`` and ``GROUP=N`` strings -> (default for all groups or None, per-group dict)."""
-    default: int | None = None
-    per: dict[str, int] = {}
-    for item in items:
-        group, sep, text = item.rpartition("=")
-        try:
-            value = int(text)
-        except ValueError:
-            raise ConfigError(f"--symmetry-number '{item}': expected N or GROUP=N with N an integer >= 1") from None
-        if value < 1:
-            raise ConfigError(f"--symmetry-number '{item}': the symmetry number must be >= 1")
-        if sep:
-            per[group] = value
-        else:
-            default = value
-    return default, per
-
-
-def parse_md_energies(items: list[str]) -> dict[str, float]:
-    """``GROUP=KJ_PER_MOL`` strings -> ``{group: value}``."""
-    out: dict[str, float] = {}
-    for item in items:
-        group, sep, text = item.partition("=")
-        try:
-            value = float(text)
-        except ValueError:
-            value = float("nan")
-        if not sep or not group or not math.isfinite(value):
-            raise ConfigError(f"--md-energy '{item}': expected GROUP=KJ_PER_MOL with a finite number")
-        out[group] = value
-    return out
 
 
 def run(args: argparse.Namespace) -> int:
@@ -131,11 +107,13 @@ def run(args: argparse.Namespace) -> int:
         "hard_sphere_entropy": args.hard_sphere_entropy, "gas_volume": args.gas_volume,
         "diffusion_from": args.diffusion_from, "viscosity_Pa_s": args.viscosity,
         "vibration_spectrum": args.vibration_spectrum, "volume_A3": args.volume,
-        "source": spectrum_path,
+        "mixtures": parse_mixtures(args.mixture), "source": spectrum_path,
     }
     md_energies = parse_md_energies(args.md_energy)
     ds = read_spectrum(spectrum_path)
-    frame = twophase_table.two_phase_properties(ds, system=args.system, md_energies_kJ_per_mol=md_energies, **options)
+    frame = twophase_table.two_phase_properties(
+        ds, system=args.system, md_energies_kJ_per_mol=md_energies, temperatures_K=args.temperatures,
+        frozen_bond_wavenumbers_cm=parse_frozen_bonds(args.frozen_bond_wavenumbers), **options)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
                    "input_spectrum": table.file_record(spectrum_path)}
     for name, info in frame.attrs["groups"].items():

@@ -126,6 +126,9 @@ class ComponentResult:
         values show where the HS gas exceeds the DoS.
     gas_dos, solid_dos : ndarray
         DoS of the parts for all N molecules (cm).
+    gas_dof : float
+        Gas degrees of freedom G = f × (3 or 2 or 3) × N of the Lorentzian over [0, ∞)
+        (its part on the grid is less when the grid ends early).
     """
 
     component: str
@@ -145,6 +148,7 @@ class ComponentResult:
     solid_dos_minimum: float
     gas_dos: NDArray[np.float64] = field(repr=False)
     solid_dos: NDArray[np.float64] = field(repr=False)
+    gas_dof: float = 0.0
 
 
 def _solid_result(
@@ -185,6 +189,7 @@ def _solid_result(
         solid_dos_minimum=float(np.min(solid)) / n,
         gas_dos=gas,
         solid_dos=solid,
+        gas_dof=gas_dof,
     )
 
 
@@ -204,6 +209,7 @@ def two_phase_component(
     hard_sphere_form: str = "published",
     gas_volume: str = "gas-particles",
     dof_per_molecule: int | None = None,
+    density_molecule_count: float | None = None,
 ) -> ComponentResult:
     """Split a translational or rotational DoS into HS gas + solid and weight both.
 
@@ -233,6 +239,10 @@ def two_phase_component(
         Nominal degrees of freedom per molecule of this motion (3 for translation,
         2 or 3 for rotation), which sets the gas dof 3fN or 2fN; default: the
         DoS integral per molecule, rounded.
+    density_molecule_count : float, optional
+        Molecules whose number density N_ρ/V enters Δ and the gas volume (V/(f N_ρ) or
+        V/N_ρ); default N.  A component of a mixture is evaluated at the total density
+        (:mod:`qcorr.thermo.twophase_mixture`).
 
     Returns
     -------
@@ -252,6 +262,8 @@ def two_phase_component(
     x = np.asarray(wavenumber_cm, dtype=float)
     s = np.asarray(dos_cm, dtype=float)
     n = float(molecule_count)
+    if not (n > 0 and math.isfinite(n)):
+        raise PhysicsError(f"{component}: 2PT needs a positive molecule count; got {molecule_count}")
     dof = float(np.trapezoid(s, x))
     if dof_per_molecule is None:
         dof_per_molecule = round(dof / n) if n > 0 else 0
@@ -263,7 +275,9 @@ def two_phase_component(
     s0 = float(s[0]) if zero_frequency_dos_cm is None else float(zero_frequency_dos_cm)
     if s0 < 0 or not math.isfinite(s0):
         raise PhysicsError(f"{component}: DoS at zero frequency is {s0} cm; it must be >= 0")
-    delta = normalized_diffusivity(s0, n, temperature_K, mass_u, volume_A3)
+    n_rho = n if density_molecule_count is None else float(density_molecule_count)
+    # Δ of [1]_ with S(0)/N per molecule and the density N_ρ/V: scale S(0) by N_ρ/N
+    delta = normalized_diffusivity(s0 * n_rho / n, n_rho, temperature_K, mass_u, volume_A3)
     if fluidicity_value is None:
         f = fluidicity(delta)
     else:
@@ -279,7 +293,7 @@ def two_phase_component(
     if f <= 0.0:
         gas_entropy_total = 0.0
     elif component == "translation":
-        per = volume_A3 / (f * n) if gas_volume == "gas-particles" else volume_A3 / n
+        per = volume_A3 / (f * n_rho) if gas_volume == "gas-particles" else volume_A3 / n_rho
         gas_entropy_total = f * n * hard_sphere_entropy(
             temperature_K, mass_u, per, y, hard_sphere_form
         )
@@ -353,6 +367,7 @@ def two_phase_group(
     rotational_fluidicity: str = "from-rotation",
     translation_zero_frequency_cm: float | None = None,
     rotational_dof_per_molecule: int | None = None,
+    density_molecule_count: float | None = None,
 ) -> GroupResult:
     """2PT totals for N molecules of one kind from their component DoS.
 
@@ -376,6 +391,9 @@ def two_phase_group(
         Translational S̃(0) to use (e.g. from an MSD diffusion coefficient).
     rotational_dof_per_molecule : int, optional
         2 (linear) or 3; default: the rotational DoS integral per molecule, rounded.
+    density_molecule_count : float, optional
+        Molecules that set the density in Δ and the gas volume; default N (see
+        :func:`two_phase_component`).
 
     Returns
     -------
@@ -389,7 +407,7 @@ def two_phase_group(
     if "translation" not in parts:
         raise ConfigError("2PT needs a translational density of states")
     common = {"molecule_count": molecule_count, "temperature_K": temperature_K, "mass_u": mass_u,
-                  "volume_A3": volume_A3}
+                  "volume_A3": volume_A3, "density_molecule_count": density_molecule_count}
     comps: dict[str, ComponentResult] = {}
     comps["translation"] = two_phase_component(
         "translation", wavenumber_cm, parts["translation"], **common,
