@@ -55,9 +55,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         default="published",
                         help="published: with ln z(y) (reference gas at the hard-sphere pressure; "
                              "default); constant-volume: Carnahan-Starling entropy at fixed N, V, T")
-    parser.add_argument("--gas-volume", choices=GAS_VOLUME_CHOICES, default="gas-particles",
+    parser.add_argument("--gas-volume", choices=GAS_VOLUME_CHOICES, default="all-particles",
                         help="volume per gas particle in the hard-sphere entropy: V/(fN) "
-                             "(gas-particles, default) or V/N (all-particles)")
+                             "(gas-particles) or V/N (all-particles, default: closest to thermodynamic "
+                             "integration on Lennard-Jones liquids, see docs/liquids.md)")
     parser.add_argument("--diffusion-from", choices=("spectrum", "msd"), default="spectrum",
                         help="translational zero-frequency value from the spectrum S(0) (default) or "
                              "from the mean-square-displacement diffusion coefficient; both are "

@@ -28,9 +28,12 @@ re-read for this implementation — see
   pressure of the HS gas); ``"constant-volume"`` drops it, which is the
   Carnahan–Starling entropy of fN hard spheres in the volume V at fixed
   (N, V, T) [3]_.  The two differ by ``k ln z`` per gas particle.
-* ``gas_volume="gas-particles"`` uses V/(fN) (the volume per *gas* particle,
-  consistent with the gas packing fraction y, which is computed from the gas
-  density fN/V); ``"all-particles"`` uses V/N.
+* ``gas_volume="all-particles"`` (default) uses V/N; ``"gas-particles"`` uses V/(fN)
+  (the volume per *gas* particle, consistent with the gas packing fraction y, which
+  is computed from the gas density fN/V).  The default is an empirical choice: with
+  ``hard_sphere_form="published"`` it is the variant closest to thermodynamic
+  integration on the Lennard-Jones references (``docs/liquids.md``); no derivation
+  of ours supports V/N over V/(fN).
 * The rotational fluidicity is either obtained from the rotational S(0) with
   the same Δ → f equation (default, as described for [2]_ in the team notes)
   or set equal to the translational fluidicity.
@@ -207,7 +210,7 @@ def two_phase_component(
     principal_moments_u_A2: ArrayLike | None = None,
     symmetry_number: int = 1,
     hard_sphere_form: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     dof_per_molecule: int | None = None,
     density_molecule_count: float | None = None,
 ) -> ComponentResult:
@@ -363,7 +366,7 @@ def two_phase_group(
     principal_moments_u_A2: ArrayLike | None = None,
     symmetry_number: int = 1,
     hard_sphere_form: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     rotational_fluidicity: str = "from-rotation",
     translation_zero_frequency_cm: float | None = None,
     rotational_dof_per_molecule: int | None = None,

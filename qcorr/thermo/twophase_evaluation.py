@@ -141,7 +141,7 @@ def checked_options(
     group_symmetry_numbers: Mapping[str, int] | None = None,
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     diffusion_from: str = "spectrum",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",

@@ -85,7 +85,8 @@ TWO_PHASE_CAUTIONS = (
 CHOICES_OFFERED = {
     "hard_sphere_entropy": {"published": "with ln z(y) (default)",
                             "constant-volume": "Carnahan-Starling at fixed N, V, T, no ln z"},
-    "gas_volume": {"gas-particles": "V/(fN) (default)", "all-particles": "V/N"},
+    "gas_volume": {"all-particles": "V/N (default; closest to thermodynamic integration on LJ liquids)",
+                   "gas-particles": "V/(fN), consistent with the gas packing fraction"},
     "rotational_fluidicity": {"from-rotation": "Delta from the rotational S(0) (default)",
                               "same-as-translation": "f_rot = f_trans"},
 }
@@ -103,7 +104,7 @@ def two_phase_properties(
     group_symmetry_numbers: Mapping[str, int] | None = None,
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     diffusion_from: str = "spectrum",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
@@ -144,8 +145,9 @@ def two_phase_properties(
     hard_sphere_entropy : {"published", "constant-volume"}
         Hard-sphere entropy with ln z(y) (published form) or the Carnahan–Starling
         entropy at fixed N, V, T.
-    gas_volume : {"gas-particles", "all-particles"}
-        Volume per gas particle: V/(fN) or V/N.
+    gas_volume : {"all-particles", "gas-particles"}
+        Volume per gas particle: V/N (default, the variant closest to thermodynamic
+        integration on the Lennard-Jones references of ``docs/liquids.md``) or V/(fN).
     diffusion_from : {"spectrum", "msd"}
         Translational zero-frequency value from the spectrum S(0) or from the
         mean-square-displacement diffusion coefficient (both are reported).
@@ -287,7 +289,7 @@ def two_phase_split_spectra(
     group_symmetry_numbers: Mapping[str, int] | None = None,
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     diffusion_from: str = "spectrum",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
