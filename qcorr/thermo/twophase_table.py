@@ -67,8 +67,10 @@ TWO_PHASE_CAUTIONS = (
     ),
     (
         "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) follow the "
-        "team's reconstruction of Lin et al. (2003, 2010); the printed equations were not re-read "
-        "for this version. The alternatives are options and are listed in this sidecar."
+        "team's reconstruction of Lin et al. (2003, 2010); only the papers' abstracts could be read, "
+        "so no equation was checked against print. The default gas volume V/N is empirical: the "
+        "variant closest to thermodynamic integration on Lennard-Jones liquids (docs/liquids.md). "
+        "The alternatives are options and are listed in this sidecar."
     ),
     (
         "The classical column uses classical harmonic weights on the solid-like part (compare with "
