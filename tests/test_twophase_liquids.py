@@ -209,3 +209,25 @@ def test_mixture_command_line_and_bad_value(tmp_path, run_qcorr):
     code, _, err = run_qcorr("liquid", path, "--output", bad, "--mixture", "total=a")
     assert code != 0 and "--mixture 'total=a'" in err and len(err.strip().splitlines()) == 1
     assert not bad.exists()
+
+
+def test_enthalpy_and_gibbs_energy_add_pv_only_for_the_whole_system():
+    """H = E + pV, G = A + pV (definitions).  With V = N k T / p (the ideal-gas law at the given
+    pressure, CODATA k via scipy) pV per mole is exactly R T; only the whole system or a mixture
+    gets the rows (a part's share of the volume is not its molar volume)."""
+    n = 1000
+    ds = _labelled_liquid((500, 500))
+    ds.attrs["mean_box_volume_A3"] = n * sc.k * T_LIQ / 1e5 / 1e-30
+    frame = two_phase_properties(ds, md_energies_kJ_per_mol={"total": -4.0, "a": -4.0}, pressure_bar=1.0)
+    rt = R * T_LIQ / 1e3
+    for column in ("classical", "quantum"):
+        assert _row(frame, "total", "enthalpy")[column] == pytest.approx(_row(frame, "total", "energy")[column] + rt,
+                                                                         rel=1e-12)
+        assert _row(frame, "total", "gibbs_free_energy")[column] == pytest.approx(
+            _row(frame, "total", "helmholtz_free_energy")[column] + rt, rel=1e-12)
+    assert frame[(frame.group == "a") & (frame.property == "enthalpy")].empty
+    mixed = two_phase_properties(ds, mixtures={"total": ["a", "b"]}, md_energies_kJ_per_mol={"total": -4.0},
+                                 pressure_bar=1.0)
+    assert _row(mixed, "total", "enthalpy")["classical"] == pytest.approx(-4.0 + rt, rel=1e-12)
+    with pytest.raises(ConfigError, match="--pressure"):
+        two_phase_properties(ds, pressure_bar=-1.0)

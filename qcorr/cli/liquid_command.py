@@ -80,6 +80,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         default=[],
                         help="mean total (kinetic + potential) MD energy of the group per mole of "
                              "its molecules, kJ/mol; makes energy and free energy absolute")
+    parser.add_argument("--pressure", metavar="BAR", type=float, default=None,
+                        help="mean MD pressure in bar: with --md-energy adds enthalpy H = E + pV and Gibbs "
+                             "energy G = A + pV (kJ/mol) for a group holding every atom, or a mixture")
     parser.add_argument("--mixture", metavar="NAME=GROUP1,GROUP2,...", action="extend", nargs="+", default=[],
                         help="groups (one kind of molecule each) that together form a liquid mixture: "
                              "each is evaluated at the total density and rows NAME (per mole of all "
@@ -114,7 +117,8 @@ def run(args: argparse.Namespace) -> int:
     ds = read_spectrum(spectrum_path)
     frame = twophase_table.two_phase_properties(
         ds, system=args.system, md_energies_kJ_per_mol=md_energies, temperatures_K=args.temperatures,
-        frozen_bond_wavenumbers_cm=parse_frozen_bonds(args.frozen_bond_wavenumbers), **options)
+        frozen_bond_wavenumbers_cm=parse_frozen_bonds(args.frozen_bond_wavenumbers),
+        pressure_bar=args.pressure, **options)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
                    "input_spectrum": table.file_record(spectrum_path)}
     for name, info in frame.attrs["groups"].items():

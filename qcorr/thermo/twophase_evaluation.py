@@ -70,6 +70,7 @@ class TwoPhaseOptions:
     mixtures: dict[str, list[str]] = field(default_factory=dict)
     temperatures_K: list[float] = field(default_factory=list)
     frozen_bond_wavenumbers_cm: dict[str, list[float]] = field(default_factory=dict)
+    pressure_bar: float | None = None
 
 
 @dataclass
@@ -150,6 +151,7 @@ def checked_options(
     mixtures: Mapping[str, Sequence[str]] | None = None,
     temperatures_K: Sequence[float] | None = None,
     frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None = None,
+    pressure_bar: float | None = None,
 ) -> TwoPhaseOptions:
     """Check the options that do not depend on the spectrum (messages name the ``qcorr liquid``
     options); the keywords are those of ``two_phase_properties``.
@@ -198,6 +200,8 @@ def checked_options(
     for g, wns in frozen.items():
         if not wns or not all(math.isfinite(w) and w > 0 for w in wns):
             raise ConfigError(f"--frozen-bond-wavenumbers {g}: wavenumbers must be positive numbers in cm-1")
+    if pressure_bar is not None and not (math.isfinite(pressure_bar) and pressure_bar >= 0):
+        raise ConfigError(f"--pressure {pressure_bar}: give the mean MD pressure in bar (>= 0)")
     return TwoPhaseOptions(
         groups=list(groups) if groups else None,
         symmetry_number=None if symmetry_number is None else int(symmetry_number),
@@ -209,6 +213,7 @@ def checked_options(
         volume_A3=None if volume_A3 is None else float(volume_A3),
         md_energies_kJ_per_mol=energies, mixtures=mixes, temperatures_K=temps,
         frozen_bond_wavenumbers_cm=frozen,
+        pressure_bar=None if pressure_bar is None else float(pressure_bar),
     )
 
 

@@ -35,6 +35,7 @@ def two_phase_rows(
     temperature: float,
     md_energy: float | None,
     note: str,
+    pv_kJ_per_mol: float | None = None,
 ) -> list[TableRow]:
     """Rows of one group (method ``2pt``, basis ``per_mole_molecules``).
 
@@ -58,6 +59,10 @@ def two_phase_rows(
         Mean total MD energy per mole of molecules, kJ/mol (None: not given).
     note : str
         Note of the entropy and heat-capacity rows (the model choices).
+    pv_kJ_per_mol : float, optional
+        pV per mole of molecules, kJ/mol: with *md_energy*, adds ``enthalpy`` (E + pV) and
+        ``gibbs_free_energy`` (A + pV) rows; their quantum corrections are those of E and A
+        (pV is classical).
     """
     R = C.gas_constant_J_per_mol_K
     rows = []
@@ -123,6 +128,17 @@ def two_phase_rows(
                              classical_se=se(a_s), quantum_se=se(a_s + da_s),
                              correction_se=se(da_s), classical_source="md_value",
                              note="A = E - T S; E_MD error not included"))
+        if pv_kJ_per_mol is not None:
+            pv_note = (f"with pV = {pv_kJ_per_mol:.6g} kJ/mol (the given pressure times the volume per molecule, "
+                       "classical); E_MD error not included")
+            rows.append(TableRow(**base, property="enthalpy", unit=units.MOLAR_ENERGY,
+                                 classical=e_c + pv_kJ_per_mol, quantum=e_c + pv_kJ_per_mol + de, correction=de,
+                                 classical_se=float("nan"), quantum_se=se(de_s), correction_se=se(de_s),
+                                 classical_source="md_value", note="H = E + pV " + pv_note))
+            rows.append(TableRow(**base, property="gibbs_free_energy", unit=units.MOLAR_ENERGY,
+                                 classical=a_c + pv_kJ_per_mol, quantum=a_c + pv_kJ_per_mol + da, correction=da,
+                                 classical_se=se(a_s), quantum_se=se(a_s + da_s), correction_se=se(da_s),
+                                 classical_source="md_value", note="G = A + pV " + pv_note))
     return rows
 
 

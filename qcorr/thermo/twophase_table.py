@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from qcorr.constants import avogadro_per_mol as AVOGADRO
 from qcorr.errors import QcorrWarning
 from qcorr.outputs.table import rows_to_frame
 from qcorr.thermo.segment_statistics import segment_effective_count
@@ -115,6 +116,7 @@ def two_phase_properties(
     mixtures: Mapping[str, Sequence[str]] | None = None,
     temperatures_K: Sequence[float] | None = None,
     frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None = None,
+    pressure_bar: float | None = None,
     source: str | os.PathLike[str] | None = None,
 ) -> pd.DataFrame:
     """Absolute entropy, heat capacity, zero-point energy, energy and free energy of liquids by 2PT.
@@ -178,6 +180,10 @@ def two_phase_properties(
     frozen_bond_wavenumbers_cm : mapping of str to sequence of float, optional
         Wavenumbers (cm⁻¹) of bonds constrained in the MD, per molecule of a group: rows of
         method ``frozen_bond_addon`` (one quantum harmonic mode each) to add to its rows.
+    pressure_bar : float, optional
+        Mean MD pressure, bar: with an MD energy, adds enthalpy H = E + pV and Gibbs energy
+        G = A + pV (kJ/mol) for a group that holds every atom of ``total``, and for a
+        mixture (V: the volume, per molecule).
     source : str or path-like, optional
         The spectrum's file name, for messages, the default *system* and the provenance;
         default the file xarray read *ds* from, if any.
@@ -214,7 +220,7 @@ def two_phase_properties(
         gas_volume=gas_volume, diffusion_from=diffusion_from, viscosity_Pa_s=viscosity_Pa_s,
         vibration_spectrum=vibration_spectrum, volume_A3=volume_A3,
         md_energies_kJ_per_mol=md_energies_kJ_per_mol, mixtures=mixtures, temperatures_K=temperatures_K,
-        frozen_bond_wavenumbers_cm=frozen_bond_wavenumbers_cm)
+        frozen_bond_wavenumbers_cm=frozen_bond_wavenumbers_cm, pressure_bar=pressure_bar)
     name = spectrum_source(ds, source)
     system = system_name(system, name)
     evaluations, mixtures_done, skipped, temperature, volume = evaluate(ds, name, opts, with_segments=True)
@@ -223,13 +229,23 @@ def two_phase_properties(
     names = [str(g) for g in ds["group"].values]
     scan = [t for t in opts.temperatures_K if not np.isclose(t, temperature, rtol=1e-12)]
     rows, notes = [], []
+    atoms = {g: int(ds["atom_count"].values[i]) for i, g in enumerate(names)}
+
+    def pv(molecules: float, whole: bool) -> float | None:
+        """pV per mole of molecules (kJ/mol), only for a group or mixture that is the whole system."""
+        if opts.pressure_bar is None or not whole:
+            return None
+        return opts.pressure_bar * 1e5 * volume * 1e-30 / molecules * AVOGADRO * 1e-3
+
     for gname, ev in evaluations.items():
         t_group = float(ds["kinetic_temperature"].values[names.index(gname)])
         checks, ev.info["checks"] = result_checks(ev.gin, ev.result, ev.segment_results, k_eff, wavenumber,
                                                   t_group if t_group > 0 else temperature)
         notes += ev.notes + model_checks(ev.gin, ev.result, ev.segment_results, k_eff, wavenumber) + checks
+        whole = ev.mixture is None and atoms[gname] == atoms.get("total", -1)
         rows += two_phase_rows(system, ev.gin, ev.result, ev.segment_results, k_eff, temperature,
-                               opts.md_energies_kJ_per_mol.get(gname), ev.note)
+                               opts.md_energies_kJ_per_mol.get(gname), ev.note,
+                               pv(ev.gin.molecule_count, whole))
         for t in scan:
             rows += temperature_scan_rows(system, gname, ev.gin.molecule_count, ev.result, ev.segment_results,
                                           k_eff, wavenumber, t, temperature)
@@ -242,7 +258,8 @@ def two_phase_properties(
         rows += two_phase_rows(system, SimpleNamespace(name=mname), mix.result, mix.segment_results, k_eff,
                                temperature, opts.md_energies_kJ_per_mol.get(mname),
                                f"2PT mixture of {', '.join(mix.members)} per mole of all their molecules: "
-                               "components at the total density plus the ideal mixing entropy")
+                               "components at the total density plus the ideal mixing entropy",
+                               pv(sum(mix.molecule_counts), True))
         rows.append(mixing_entropy_row(system, mname, mix.info["ideal_mixing_entropy_per_molecule_k"],
                                        temperature, mix.members))
     if scan:
@@ -269,6 +286,7 @@ def two_phase_properties(
             "mixtures": opts.mixtures,
             "temperatures_K": opts.temperatures_K,
             "frozen_bond_wavenumbers_cm": opts.frozen_bond_wavenumbers_cm,
+            "pressure_bar": opts.pressure_bar,
         },
         "choices_offered": CHOICES_OFFERED,
         "standard_errors": "per-segment spectra; s / sqrt(K_eff), Welch (1967) effective segment count",
