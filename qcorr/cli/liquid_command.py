@@ -18,6 +18,7 @@ from qcorr.safe_write import atomic_path
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo import twophase_table
 from qcorr.thermo.hard_sphere_gas import GAS_VOLUME_CHOICES, HARD_SPHERE_FORMS
+from qcorr.thermo.twophase_evaluation import DIFFUSION_SOURCES
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES
 
 NAME = "liquid"
@@ -59,10 +60,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="volume per gas particle in the hard-sphere entropy: V/(fN) "
                              "(gas-particles) or V/N (all-particles, default: closest to thermodynamic "
                              "integration on Lennard-Jones liquids, see docs/liquids.md)")
-    parser.add_argument("--diffusion-from", choices=("spectrum", "msd"), default="spectrum",
-                        help="translational zero-frequency value from the spectrum S(0) (default) or "
-                             "from the mean-square-displacement diffusion coefficient; both are "
-                             "always reported")
+    parser.add_argument("--diffusion-from", choices=DIFFUSION_SOURCES, default="auto",
+                        help="translational zero-frequency value: auto (default: the VACF integral when "
+                             "the file has the molecules' VACF, else the MSD), vacf-integral (Green-Kubo "
+                             "integral over one segment), msd (Einstein slope), or spectrum (S(0) of the "
+                             "tapered spectrum, biased high); all are reported")
     parser.add_argument("--viscosity", metavar="PA_S", type=float, default=None,
                         help="shear viscosity in Pa s: add the Yeh-Hummer finite-size correction "
                              "2.837297 kT/(6 pi eta L) (cubic box, L = volume^(1/3)) to the "

@@ -19,6 +19,7 @@ import xarray as xr
 
 from qcorr.errors import ConfigError, PhysicsError
 from qcorr.spectra.spectrum_file import group_names
+from qcorr.thermo.diffusion import GreenKuboDiffusion, green_kubo_diffusion
 from qcorr.thermo.hard_sphere_gas import (
     GAS_VOLUME_CHOICES,
     HARD_SPHERE_FORMS,
@@ -26,6 +27,7 @@ from qcorr.thermo.hard_sphere_gas import (
     self_diffusion_from_zero_frequency,
     zero_frequency_from_self_diffusion,
 )
+from qcorr.thermo.segment_statistics import segment_effective_count
 from qcorr.thermo.spectrum_groups import spectrum_temperature
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES, GroupResult, two_phase_group
 from qcorr.thermo.twophase_inputs import (
@@ -38,8 +40,11 @@ from qcorr.thermo.twophase_inputs import (
 )
 from qcorr.thermo.twophase_mixture import ideal_mixing_entropy, mixture_result
 
-#: where the translational zero-frequency value comes from
-DIFFUSION_SOURCES = ("spectrum", "msd")
+#: where the translational zero-frequency value comes from: the taper-free one available
+#: (auto), the Green-Kubo integral of the VACF, the MSD slope, or the spectrum's S(0)
+DIFFUSION_SOURCES = ("auto", "vacf-integral", "msd", "spectrum")
+#: D from the VACF integral and from the MSD disagree beyond this share (plus 3 standard errors)
+DIFFUSION_DISAGREEMENT = 0.05
 
 __all__ = [
     "DIFFUSION_SOURCES",
@@ -143,7 +148,7 @@ def checked_options(
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
     gas_volume: str = "all-particles",
-    diffusion_from: str = "spectrum",
+    diffusion_from: str = "auto",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
     volume_A3: float | None = None,
@@ -217,6 +222,23 @@ def checked_options(
     )
 
 
+def vacf_diffusion(ds: xr.Dataset, g: int, gin: GroupInput, effective_segments: float
+                   ) -> GreenKuboDiffusion | None:
+    """Green-Kubo D of group *g* from the spectrum file's per-segment VACF (m²/s), or None.
+
+    Only for groups of one-atom molecules, whose atomic VACF is the translational one: the
+    mass-weighted sums ``vacf_segments_raw`` (g/mol Å²/ps²) divided by the group's mass give
+    ⟨v(0)·v(t)⟩ per atom (:func:`qcorr.thermo.diffusion.green_kubo_diffusion`).
+    """
+    if int(ds["atom_count"].values[g]) != gin.molecule_count or "vacf_segments_raw" not in ds.variables:
+        return None  # molecules of several atoms: the atomic VACF is not the centres' VACF
+    mass = float(ds["group_mass"].values[g])
+    raw = np.asarray(ds["vacf_segments_raw"].values[g], dtype=float)
+    if not (mass > 0 and raw.shape[-1] >= 8 and np.all(np.isfinite(raw))):
+        return None
+    return green_kubo_diffusion(ds["lag"].values, raw / mass, effective_segments)
+
+
 def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptions, *,
                     temperature: float, volume: float, with_segments: bool,
                     density_molecule_count: float | None = None) -> GroupEvaluation:
@@ -231,9 +253,21 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
     t_kin = diffusion_temperature(ds, g, temperature)
     s0_spectrum = float(gin.parts["translation"][0])
     d_spectrum = self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count, t_kin, gin.mass_u)
-    if opts.diffusion_from == "msd" and not math.isfinite(gin.msd_diffusion_m2_per_s):
+    gk = vacf_diffusion(ds, g, gin, segment_effective_count(ds))
+    source = opts.diffusion_from
+    if source == "auto":
+        source = "vacf-integral" if gk is not None else ("msd" if math.isfinite(gin.msd_diffusion_m2_per_s)
+                                                         else "spectrum")
+        if source == "spectrum":
+            notes.append(f"group '{name}': no taper-free diffusion coefficient in the spectrum file (no VACF of "
+                         "the molecules, no MSD); the fluidicity uses S(0) of the tapered spectrum, biased high")
+    if source == "msd" and not math.isfinite(gin.msd_diffusion_m2_per_s):
         raise PhysicsError(f"group '{name}': --diffusion-from msd needs the MSD diffusion coefficient, "
                            "which the spectrum file lacks; remake it with 'qcorr spectrum --molecular'")
+    if source == "vacf-integral" and gk is None:
+        raise PhysicsError(f"group '{name}': --diffusion-from vacf-integral needs the VACF of the molecules' "
+                           "centres of mass, which the spectrum file holds only for one-atom molecules; "
+                           "use --diffusion-from msd")
     d_correction = 0.0
     if opts.viscosity_Pa_s is not None:
         d_correction = finite_size_diffusion_correction(temperature, opts.viscosity_Pa_s,
@@ -244,14 +278,24 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
 
     n_seg = ds.sizes["segment"]
     gin = segments_rescaled(gin, wavenumber)
-    if opts.diffusion_from == "msd":
-        s0 = s0_of(gin.msd_diffusion_m2_per_s + d_correction)
-        s0_segments = [s0] * n_seg
+    if source == "msd":
         d_used = gin.msd_diffusion_m2_per_s + d_correction
+        s0_segments = [s0_of(d_used)] * n_seg
+    elif source == "vacf-integral":
+        d_used = gk.value + d_correction
+        s0_segments = [s0_of(d + d_correction) for d in gk.per_segment]
     else:
-        s0 = s0_spectrum + s0_of(d_correction)
-        s0_segments = [float(v[0]) + s0_of(d_correction) for v in gin.part_segments["translation"]]
         d_used = d_spectrum + d_correction
+        s0_segments = [float(v[0]) + s0_of(d_correction) for v in gin.part_segments["translation"]]
+    s0 = s0_of(d_used) if source != "spectrum" else s0_spectrum + s0_of(d_correction)
+    if gk is not None and math.isfinite(gin.msd_diffusion_m2_per_s):
+        gap = abs(gk.value - gin.msd_diffusion_m2_per_s)
+        allowed = DIFFUSION_DISAGREEMENT * gin.msd_diffusion_m2_per_s + 3.0 * (
+            gk.standard_error if math.isfinite(gk.standard_error) else 0.0)
+        if gap > allowed:
+            notes.append(f"group '{name}': D from the VACF integral ({gk.value:.4g} m2/s) and from the MSD "
+                         f"({gin.msd_diffusion_m2_per_s:.4g} m2/s) disagree by more than 5 % and 3 standard "
+                         "errors; use longer segments or a longer trajectory")
     settings = {"molecule_count": gin.molecule_count, "temperature_K": temperature,
                 "mass_u": gin.mass_u, "volume_A3": volume,
                 "principal_moments_u_A2": gin.principal_moments, "symmetry_number": sigma,
@@ -275,6 +319,11 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
         "symmetry_number": sigma,
         "self_diffusion_from_spectrum_m2_per_s": json_number(d_spectrum),
         "self_diffusion_from_msd_m2_per_s": json_number(gin.msd_diffusion_m2_per_s),
+        "self_diffusion_from_vacf_integral_m2_per_s": json_number(gk.value) if gk else None,
+        "self_diffusion_from_vacf_integral_se_m2_per_s": json_number(gk.standard_error) if gk else None,
+        "vacf_long_lag_tail_m2_per_s": json_number(gk.tail_estimate) if gk else None,
+        "vacf_window_ps": gk.window_ps if gk else None,
+        "diffusion_source_used": source,
         "finite_size_correction_m2_per_s": json_number(d_correction),
         "self_diffusion_used_m2_per_s": json_number(d_used),
         "temperature_for_diffusion_K": t_kin,
@@ -293,7 +342,7 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
     }
     note = (f"2PT per mole of molecules; hard-sphere entropy {opts.hard_sphere_entropy}, gas volume "
             f"{opts.gas_volume}, rotational fluidicity {opts.rotational_fluidicity}, zero-frequency "
-            f"value from {opts.diffusion_from}, vibration spectrum {opts.vibration_spectrum}"
+            f"value from {source}, vibration spectrum {opts.vibration_spectrum}"
             + (f" + Yeh-Hummer correction (viscosity {opts.viscosity_Pa_s:g} Pa s)"
                if opts.viscosity_Pa_s else ""))
     return GroupEvaluation(gin, result, segment_results, info, notes, note)

@@ -79,8 +79,9 @@ TWO_PHASE_CAUTIONS = (
         "quantum weights. Energy and free energy are absolute only with --md-energy."
     ),
     (
-        "Standard errors come from the per-segment spectra (fluidicity solved per segment); with "
-        "--diffusion-from msd the zero-frequency value is held fixed and its error is not included."
+        "Standard errors come from the per-segment spectra (fluidicity solved per segment, with each "
+        "segment's own VACF integral or S(0)); with the MSD the zero-frequency value is held fixed and "
+        "its error is not included."
     ),
 )
 
@@ -108,7 +109,7 @@ def two_phase_properties(
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
     gas_volume: str = "all-particles",
-    diffusion_from: str = "spectrum",
+    diffusion_from: str = "auto",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
     volume_A3: float | None = None,
@@ -152,9 +153,12 @@ def two_phase_properties(
     gas_volume : {"all-particles", "gas-particles"}
         Volume per gas particle: V/N (default, the variant closest to thermodynamic
         integration on the Lennard-Jones references of ``docs/liquids.md``) or V/(fN).
-    diffusion_from : {"spectrum", "msd"}
-        Translational zero-frequency value from the spectrum S(0) or from the
-        mean-square-displacement diffusion coefficient (both are reported).
+    diffusion_from : {"auto", "vacf-integral", "msd", "spectrum"}
+        Translational zero-frequency value: the Green–Kubo integral of the VACF over one
+        segment (one-atom molecules), the Einstein MSD slope, or S(0) of the tapered
+        spectrum (biased high where the spectrum rises steeply; ``methods.md`` §8.3).
+        ``auto`` takes the VACF integral when the file has the molecules' VACF, else the
+        MSD, else S(0) with a caution.  All are reported in ``attrs["groups"]``.
     viscosity_Pa_s : float, optional
         Shear viscosity in Pa s: adds the Yeh–Hummer correction 2.837297 kT/(6 π η L)
         (cubic box, L = volume^(1/3)) to the self-diffusion coefficient [3]_.
@@ -310,7 +314,7 @@ def two_phase_split_spectra(
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
     gas_volume: str = "all-particles",
-    diffusion_from: str = "spectrum",
+    diffusion_from: str = "auto",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
     volume_A3: float | None = None,
@@ -362,7 +366,8 @@ def two_phase_split_spectra(
 
 
 def diffusion_summary(group: str, info: Mapping) -> str:
-    """One line on a group's diffusion: D from S(0) and from the MSD (m²/s), and the fluidicities.
+    """One line on a group's diffusion: D from the VACF integral, the MSD and S(0) (m²/s), which
+    one the fluidicity used, and the fluidicities.
 
     Parameters
     ----------
@@ -371,8 +376,10 @@ def diffusion_summary(group: str, info: Mapping) -> str:
     info : mapping
         The group's entry of ``attrs["groups"]`` of a :func:`two_phase_properties` table.
     """
-    d = [float("nan") if v is None else v for v in (info["self_diffusion_from_spectrum_m2_per_s"],
-                                                    info["self_diffusion_from_msd_m2_per_s"])]
-    return (f"group '{group}': D from S(0) = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s; "
+    d = [float("nan") if info.get(k) is None else info[k]
+         for k in ("self_diffusion_from_vacf_integral_m2_per_s", "self_diffusion_from_msd_m2_per_s",
+                   "self_diffusion_from_spectrum_m2_per_s")]
+    return (f"group '{group}': D from the VACF integral = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s, "
+            f"from S(0) = {d[2]:.4g} m2/s (used: {info.get('diffusion_source_used', '?')}); "
             + ", ".join(f"{comp} f = {c['fluidicity']:.4g}"
                         for comp, c in info["components"].items() if comp != "vibration"))
