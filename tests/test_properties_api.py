@@ -219,7 +219,7 @@ def demo_spectra(tmp_path_factory) -> dict[str, Path]:
 
 #: sidecar items the command adds or sets at writing (the rest is the DataFrame's attrs)
 _WRITTEN_BY_THE_COMMAND = ("qcorr_file_kind", "table", "columns", "versions", "command_line",
-                           "input_spectrum")
+                           "input_spectrum", "csv_rows", "csv_sha256")
 
 
 def _same_table(api: pd.DataFrame, csv: Path) -> None:
