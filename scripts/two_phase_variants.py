@@ -28,7 +28,7 @@ SYSTEMS = {
                                   "mixtures": {"total": ["ar", "kr"]}},
 }
 VARIANTS = list(itertools.product(("published", "constant-volume"), ("all-particles", "gas-particles"),
-                                  ("spectrum", "msd")))
+                                  ("vacf-integral", "msd", "spectrum")))
 
 
 def _references_module():

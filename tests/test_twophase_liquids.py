@@ -231,3 +231,63 @@ def test_enthalpy_and_gibbs_energy_add_pv_only_for_the_whole_system():
     assert _row(mixed, "total", "enthalpy")["classical"] == pytest.approx(-4.0 + rt, rel=1e-12)
     with pytest.raises(ConfigError, match="--pressure"):
         two_phase_properties(ds, pressure_bar=-1.0)
+
+
+# ------------------------------------------------------------ taper-free zero-frequency value
+def _exponential_vacf(lag_ps, gamma_per_ps, kt_over_m):
+    """<v(0).v(t)> = 3 (kT/m) exp(-γt) of the Langevin free particle (Uhlenbeck, Ornstein, Phys. Rev.
+    36, 823 (1930)), Å²/ps²; its Green-Kubo integral to τ is D (1 - exp(-γτ)), D = kT/(mγ)."""
+    return 3.0 * kt_over_m * np.exp(-gamma_per_ps * lag_ps)
+
+
+def test_green_kubo_integral_of_the_langevin_vacf():
+    from qcorr.thermo.diffusion import green_kubo_diffusion
+
+    lag = np.arange(2001) * 0.0025  # 5 ps
+    gamma, kt_m = 2.0, 1.8  # 1/ps, Å²/ps² (argon at 86.5 K: kT/m = 1.80 Å²/ps²)
+    segs = np.stack([_exponential_vacf(lag, gamma, kt_m) * (1 + 0.02 * k) for k in (-1, 0, 1)])
+    res = green_kubo_diffusion(lag, segs, 3.0)
+    d_exact = kt_m / gamma * (1 - math.exp(-gamma * lag[-1])) * 1e-8  # Å²/ps -> m²/s
+    assert res.value == pytest.approx(d_exact, rel=1e-6)
+    assert res.window_ps == pytest.approx(5.0)
+    # three segments at -2 %, 0, +2 %: standard error = sd / sqrt(3) = 0.02 D / sqrt(3)
+    assert res.standard_error == pytest.approx(0.02 * d_exact / math.sqrt(3), rel=1e-6)
+
+
+def test_alder_wainwright_tail_is_recovered_and_only_reported():
+    """C(t) = A t^(-3/2) at long lags (Alder, Wainwright, Phys. Rev. A 1, 18 (1970)): the fit over
+    the last half of the lags returns A, and the tail beyond τ is 2Aτ^(-1/2)/3."""
+    from qcorr.thermo.diffusion import green_kubo_diffusion
+
+    lag = np.arange(1001) * 0.01
+    amplitude = 0.05  # Å²/ps² ps^(3/2)
+    vacf = amplitude * np.maximum(lag, 0.5) ** -1.5
+    res = green_kubo_diffusion(lag, vacf[None, :], 1.0)
+    assert res.tail_estimate == pytest.approx(2 * amplitude / math.sqrt(lag[-1]) / 3 * 1e-8, rel=1e-12)
+    assert res.value == pytest.approx(np.trapezoid(vacf, lag) / 3 * 1e-8, rel=1e-12)
+    assert math.isnan(res.standard_error)
+
+
+def test_auto_uses_the_vacf_integral_and_warns_when_msd_disagrees():
+    ds = _labelled_liquid((500, 500))
+    lag = np.arange(256) * 0.0125
+    vacf = _exponential_vacf(lag, 4.0, 1.8)  # D = 0.45 Å²/ps = 4.5e-9 m²/s (window 3.19 ps: 1 - 3e-6)
+    n_seg = ds.sizes["segment"]
+    raw = np.stack([np.tile(vacf * float(ds["group_mass"].values[i]), (n_seg, 1)) for i in range(3)])
+    ds = ds.drop_vars(["vacf", "lag"]).assign_coords(lag=("lag", lag, {"units": "ps"}))
+    ds["vacf_segments_raw"] = (("group", "segment", "lag"), raw)
+    frame = two_phase_properties(ds, groups=["total"])
+    info = frame.attrs["groups"]["total"]
+    assert info["diffusion_source_used"] == "vacf-integral"
+    assert info["self_diffusion_from_vacf_integral_m2_per_s"] == pytest.approx(
+        1.8 / 4.0 * (1 - math.exp(-4.0 * lag[-1])) * 1e-8, rel=5e-4)  # trapezoid error (γΔt)²/12 = 2e-4
+    assert not any("disagree" in c for c in frame.attrs["cautions"])
+    # an MSD 20 % away (as 'qcorr spectrum --molecular' would record it) is flagged
+    from qcorr.thermo import twophase_evaluation as ev
+
+    gin = ev.group_input(ds, 0, "total", "test")
+    gin.msd_diffusion_m2_per_s = 1.2 * info["self_diffusion_from_vacf_integral_m2_per_s"]
+    opts = ev.checked_options()
+    result = ev._evaluate_group(ds, 0, gin, opts, temperature=T_LIQ, volume=1000 * VOLUME_PER_ATOM_A3,
+                                with_segments=False)
+    assert any("disagree" in n for n in result.notes)
