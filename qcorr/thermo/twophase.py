@@ -17,11 +17,19 @@ Conventions (all functions, no I/O here):
 * Results are per molecule in units of k (entropy, heat capacity) or kT
   (energies); conversions to J/(mol K) and kJ/mol use ``qcorr.constants``.
 
-Choices that the literature does not settle are explicit arguments, and the
-defaults follow the published 2PT papers as reproduced in the team notes
-(``methods.md`` §3; the exact printed typography of [1]_ and [2]_ was not
-re-read for this implementation — see
-:func:`qcorr.thermo.hard_sphere_gas.hard_sphere_entropy`):
+Sources.  The equations here (Δ, the fluidicity equation, the Lorentzian gas spectrum,
+the hard-sphere entropy, the rigid-rotor gas, the weights) are the team's reconstruction of
+[1]_ and [2]_ (``methods.md`` §3), checked for internal consistency (sum rules, limits, the
+Carnahan–Starling form of the fluidicity equation, the Sackur–Tetrode and rigid-rotor limits;
+``tests/test_twophase.py``).  They were *not* checked against the printed papers: in the
+stored copies available to us only the abstracts of [1]_ and [2]_ could be read (searches
+for the body text of both, and of the refinements of Desjarlais, Phys. Rev. E 88, 062145
+(2013) and Sun et al., J. Chem. Phys. 147, 194505 (2017), returned abstracts only), so no
+printed equation number can be given.  The defaults are validated against thermodynamic
+integration instead (``docs/liquids.md``, ``tests/test_liquid_validation.py``).
+
+Choices that the literature, as far as it could be read, does not settle are explicit
+arguments:
 
 * ``hard_sphere_form="published"`` keeps the ``ln z(y)`` term inside the
   logarithm of the HS entropy (the reference ideal gas is taken at the
