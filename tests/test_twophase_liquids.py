@@ -291,3 +291,37 @@ def test_auto_uses_the_vacf_integral_and_warns_when_msd_disagrees():
     result = ev._evaluate_group(ds, 0, gin, opts, temperature=T_LIQ, volume=1000 * VOLUME_PER_ATOM_A3,
                                 with_segments=False)
     assert any("disagree" in n for n in result.notes)
+
+
+def test_kinetic_temperature_imbalance_warns_only_beyond_two_percent_and_its_scatter():
+    """A component's kinetic temperature is T x (its spectrum's integral)/(its dof N): the
+    equipartition check of methods.md §6 item 2.  Translation 5 % cold and rotation 5 % hot
+    warn; 1 % does not; 5 % within two standard errors of a noisy run does not."""
+    from qcorr.thermo.twophase_checks import component_temperatures, result_checks
+    from qcorr.thermo.twophase_inputs import GroupInput
+
+    n, t = 1000, 300.0
+    x = np.linspace(0.0, 400.0, 2001)
+    moments = np.array([0.6, 1.2, 1.8])  # u Å², water-like
+
+    def group(off, scatter):
+        trn = _liquid_vdos(x, 3.0 * n) * (1 - off)
+        rot = _liquid_vdos(x, 3.0 * n) * (1 + off)
+        factors = 1 + scatter * np.array([-1.0, 0.0, 1.0, 0.0])
+        segs = {"translation": trn[None] * factors[:, None], "rotation": rot[None] * factors[::-1, None]}
+        gin = GroupInput("water", n, 18.015, {"translation": trn, "rotation": rot}, segs, moments, float("nan"),
+                         "molecular decomposition", 3)
+        res = tp.two_phase_group(x, gin.parts, molecule_count=n, temperature_K=t, mass_u=18.015,
+                                 volume_A3=n * 29.9, principal_moments_u_A2=moments, symmetry_number=2)
+        return gin, res
+
+    gin, res = group(0.05, 0.0)
+    temps = component_temperatures(gin, x, t, 4.0)
+    assert temps["translation"][0] == pytest.approx(0.95 * t, rel=1e-9)
+    assert temps["rotation"][0] == pytest.approx(1.05 * t, rel=1e-9)
+    notes, info = result_checks(gin, res, [res, res], 4.0, x, t)
+    assert sum("not equipartitioned" in n for n in notes) == 2
+    gin, res = group(0.01, 0.0)
+    assert not any("not equipartitioned" in n for n in result_checks(gin, res, [res, res], 4.0, x, t)[0])
+    gin, res = group(0.05, 0.2)  # segments scatter by ±20 %: the 5 % is within two standard errors
+    assert not any("not equipartitioned" in n for n in result_checks(gin, res, [res, res], 4.0, x, t)[0])
