@@ -23,7 +23,7 @@ measures scaling with frame blocks: the trajectory split into two frame blocks
 (``qcorr spectrum --block 1-of-2`` and ``2-of-2``) run as two processes at the same
 time, followed by ``qcorr combine``, against one process doing the whole
 trajectory; and ``--threads 2``: one job whose frame window is split over the command's
-process and one spawned worker (the worker's start-up and imports are part of the time).
+process and one worker forked from a forkserver (its start-up and imports are part of the time).
 
 The targets of issue 7 are printed beside the measured figures; they are not
 asserted (this is not a test).  Results go to ``docs/performance.md`` together
@@ -193,7 +193,8 @@ def measure_read(top: str, traj: str) -> dict:
 def measure_library(top: str, traj: str) -> dict:
     import MDAnalysis as mda
 
-    from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings, segment_frames_for
+    from qcorr.spectra.estimator import SegmentAccumulator
+    from qcorr.spectra.segments import SpectrumSettings, segment_frames_for
 
     clock = Clock()
     u = mda.Universe(top, traj)
@@ -223,10 +224,9 @@ def import_everything() -> None:
     import qcorr.cli
     import qcorr.cli.combine_command
     import qcorr.cli.spectrum_command
-    import qcorr.reading.trajectory
-    import qcorr.spectra.diagnostics
-    import qcorr.spectra.estimator
-    import qcorr.spectra.spectrum_file
+    import qcorr.cli.spectrum_report
+    import qcorr.spectra.analysis
+    import qcorr.spectra.blocks
 
     qcorr.cli.build_parser()
 
@@ -306,7 +306,7 @@ def measure_in_memory(top: str, traj: str) -> dict:
 
 def run_measure(spec: dict) -> dict:
     if spec.get("cpus"):
-        # run on these cores only (sched_setaffinity(2)); threads and spawned workers inherit it
+        # run on these cores only (sched_setaffinity(2)); threads and worker processes inherit it
         os.sched_setaffinity(0, set(spec["cpus"]))
     kind = spec["kind"]
     if kind == "baseline":
@@ -861,7 +861,7 @@ def main(argv: list[str] | None = None) -> int:
             f" {fmt(combine_cpu)} s vs one job {fmt(single_cpu)} s) | | {fmt(speedup_blocks_cpu)} | |"
         ),
         (
-            f"| one job, `--threads 2` (its process + 1 spawned worker, start-up included) "
+            f"| one job, `--threads 2` (its process + 1 worker from a forkserver, start-up included) "
             f"| {fmt(threaded['seconds'])} | {fmt(speedup_threads)} | {threaded['peak_MiB']:.0f} |"
         ),
         "",

@@ -101,17 +101,21 @@ def child(mode: str, pdb: str, trr: str, repeats: int, segment_frames: int, work
     """
     import MDAnalysis as mda
 
-    from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
+    from qcorr.spectra.estimator import SegmentAccumulator
+    from qcorr.spectra.segments import SpectrumSettings
 
     u = mda.Universe(pdb, [trr] * repeats) if repeats > 1 else mda.Universe(pdb, trr)
     atoms = u.atoms
     n_frames = len(u.trajectory)
     if mode == "command_loop":
-        from qcorr.reading import trajectory as trj
+        from qcorr.reading.masses import massive_atoms
+        from qcorr.reading.stream import FrameStatistics, stream_velocities
+        from qcorr.reading.time_axis import frame_window
+        from qcorr.reading.universe import open_trajectory
 
-        opened = trj.open_trajectory(pdb, [trr] * repeats)
-        channels = trj.massive_atoms(opened.universe)
-        window = trj.frame_window(opened)
+        opened = open_trajectory(pdb, [trr] * repeats)
+        channels = massive_atoms(opened.universe)
+        window = frame_window(opened)
         settings = SpectrumSettings(window.timestep_ps, segment_frames, 0.5, "hann")
         acc = SegmentAccumulator(
             settings, channels.masses, np.ones((1, channels.masses.size), bool), workers=workers
@@ -124,8 +128,8 @@ def child(mode: str, pdb: str, trr: str, repeats: int, segment_frames: int, work
         for ts in u.trajectory:
             _ = ts.velocities
     elif mode == "command_loop":
-        stats = trj.FrameStatistics()
-        for v in trj.stream_velocities(
+        stats = FrameStatistics()
+        for v in stream_velocities(
             opened, channels, window, 0, window.n_frames, statistics=stats, dtype=np.float32
         ):
             acc.add_frame(v)

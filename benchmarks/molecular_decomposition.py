@@ -15,8 +15,9 @@ import time
 import numpy as np
 from scipy.spatial.transform import Rotation
 
-from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
+from qcorr.spectra.estimator import SegmentAccumulator
 from qcorr.spectra.molecular import MolecularDecomposer, build_layout
+from qcorr.spectra.segments import SpectrumSettings
 
 
 def main(n_mol: int = 5000, n_frames: int = 200) -> None:

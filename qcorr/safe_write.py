@@ -42,3 +42,27 @@ def write_text_atomic(target: str | os.PathLike[str], text: str) -> None:
     """Write *text* to *target* atomically (UTF-8)."""
     with atomic_path(target) as tmp:
         tmp.write_text(text, encoding="utf-8")
+
+
+def check_writable(target: str | os.PathLike[str], option: str = "--output") -> None:
+    """Fail early if *target*'s directory (or its nearest existing parent) is not writable.
+
+    Parameters
+    ----------
+    target : path
+        The output file to be written.
+    option : str
+        The option that named it, for the message.
+
+    Raises
+    ------
+    qcorr.errors.ConfigError
+        Naming the option, the file and the directory.
+    """
+    from qcorr.errors import ConfigError
+
+    parent = Path(target).resolve().parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise ConfigError(f"{option} {target}: cannot write in '{parent}'; choose a writable directory")

@@ -11,7 +11,9 @@ from scipy.spatial.transform import Rotation
 
 from qcorr.errors import ConfigError, TrajectoryError
 from qcorr.spectra import molecular as mo
-from qcorr.spectra.estimator import SegmentAccumulator, SpectrumSettings
+from qcorr.spectra.estimator import SegmentAccumulator
+from qcorr.spectra.molecular_pass import CentreOfMassDisplacement
+from qcorr.spectra.segments import SpectrumSettings
 
 RNG_SEED = 20261202
 
@@ -198,7 +200,7 @@ def test_msd_recovers_random_walk_diffusion():
     x = rng.uniform(0, 12.0, size=(n, 3))
     layout = mo.build_layout(masses, np.arange(n), np.ones((1, n), bool), x, BOX)
     dec = mo.MolecularDecomposer(layout)
-    msd = mo.CentreOfMassDisplacement(layout.group_molecules, dt, max_lag_frames=40, n_lags=20)
+    msd = CentreOfMassDisplacement(layout.group_molecules, dt, max_lag_frames=40, n_lags=20)
     for _ in range(400):
         dec.frame(np.mod(x, 12.0), np.zeros((n, 3)), BOX)
         msd.add_frame(dec.unwrapped_com)

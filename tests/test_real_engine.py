@@ -186,7 +186,7 @@ def test_finite_differences_match_stored_velocities_below_half_nyquist(argon_run
         diff = np.trapezoid(raw_d[band], wn[band]) - np.trapezoid(raw_s[band], wn[band])
         assert abs(diff) < 0.01 * total_s, (lo, hi, diff / total_s)
     # the correction mattered: uncorrected differences would lose more than 1 % here
-    from qcorr.spectra.estimator import finite_difference_power_transfer
+    from qcorr.spectra.raw_vdos import finite_difference_power_transfer
 
     h2 = finite_difference_power_transfer(thz * 1e12, float(stored.attrs["timestep_ps"]))
     assert np.trapezoid((raw_d * h2)[below], wn[below]) < 0.99 * total_s

@@ -34,15 +34,14 @@ from hypothesis import settings as hyp_settings
 from hypothesis import strategies as st
 
 from qcorr.errors import ConfigError, QcorrError, SamplingError, TrajectoryError
-from qcorr.spectra.estimator import (
-    SegmentAccumulator,
+from qcorr.spectra.estimator import SegmentAccumulator
+from qcorr.spectra.raw_vdos import finite_difference_power_transfer, vdos_per_wavenumber
+from qcorr.spectra.segments import (
     SpectrumSettings,
     block_range,
-    finite_difference_power_transfer,
     frames_needed,
     segment_frames_for,
     segment_starts,
-    vdos_per_wavenumber,
 )
 
 # k T / (1 u) in (Angstrom/ps)^2, from CODATA via scipy.constants (independent of qcorr.constants)
@@ -551,9 +550,9 @@ def test_docstring_examples():
     # and the equipartition sum rule).
     import doctest
 
-    import qcorr.spectra.estimator
+    import qcorr.spectra.raw_vdos
 
-    outcome = doctest.testmod(qcorr.spectra.estimator, optionflags=doctest.ELLIPSIS)
+    outcome = doctest.testmod(qcorr.spectra.raw_vdos, optionflags=doctest.ELLIPSIS)
     assert outcome.attempted >= 4 and outcome.failed == 0
 
 

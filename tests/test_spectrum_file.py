@@ -125,12 +125,9 @@ def test_incomplete_dataset_never_written(tmp_path):
 from types import SimpleNamespace
 
 from qcorr.spectra import diagnostics
-from qcorr.spectra.spectrum_file import (
-    assemble_spectrum,
-    combine_blocks,
-    group_table,
-    raw_segments_of,
-)
+from qcorr.spectra.assemble import assemble_spectrum, group_table
+from qcorr.spectra.blocks import combine_blocks
+from qcorr.spectra.spectrum_file import raw_segments_of
 
 
 def _assembled(raw_scale=1.0, n_segments=6, shape="line", com_mv2=0.0, temperature=300.0, first_segment=0,
@@ -221,7 +218,7 @@ def test_combine_blocks_rebuilds_the_whole():
 
 
 def test_file_records_of_blocks_must_cover_each_file_once():
-    from qcorr.spectra.spectrum_file import combine_file_records
+    from qcorr.spectra.blocks import combine_file_records
 
     def block(first, stop, size=10, name="run.trr"):
         return [{"name": name, "size_bytes": size,

@@ -20,6 +20,7 @@ DESCRIPTION = (
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Options of ``qcorr combine``."""
     parser.add_argument("blocks", nargs="+", metavar="BLOCK.nc",
                         help="block files, in any order (each block 1..N exactly once)")
     parser.add_argument("--output", required=True, metavar="FILE.nc",
@@ -27,18 +28,21 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from qcorr.cli.spectrum_command import finish
-    from qcorr.spectra.spectrum_file import combine_blocks, read_spectrum
+    """Run ``qcorr combine``; returns the exit status."""
+    from qcorr.cli.spectrum_report import write_with_report
+    from qcorr.safe_write import check_writable
+    from qcorr.spectra.blocks import combine_blocks
+    from qcorr.spectra.diagnostics import announce, diagnose
+    from qcorr.spectra.spectrum_file import read_spectrum
 
     out = Path(args.output).resolve()
     for name in args.blocks:
         if Path(name).resolve() == out:
             raise ConfigError(f"--output {args.output} is also a block file; choose another name")
-    from qcorr.cli.spectrum_command import check_output_writable
-
-    check_output_writable(args.output)
+    check_writable(args.output)
     datasets = [read_spectrum(name) for name in args.blocks]
-    combined = combine_blocks(datasets, list(args.blocks),
-                              getattr(args, "command_line", "qcorr combine"))
-    finish(combined, args.output)
+    combined = combine_blocks(datasets, list(args.blocks), getattr(args, "command_line", "qcorr combine"))
+    checks = diagnose(combined)
+    announce(checks)
+    write_with_report(combined, checks, args.output)
     return 0

@@ -2,7 +2,8 @@
 
 Each check returns a :class:`Diagnostic` (check name, ``"ok"`` or ``"warning"``,
 one-line message).  :func:`run_diagnostics` runs all of them on a spectrum
-dataset; :func:`announce` emits the warnings as :class:`~qcorr.errors.QcorrWarning`.
+dataset (:func:`diagnose` also records them in the dataset); :func:`announce` emits
+the warnings as :class:`~qcorr.errors.QcorrWarning`.
 The list is stored in the spectrum file as the JSON attribute ``diagnostics``.
 
 Thresholds (module constants): those of the aliasing, resolution and centre-of-mass checks
@@ -374,13 +375,26 @@ def run_diagnostics(ds: xr.Dataset) -> list[Diagnostic]:
     return [check(ds) for check in ALL_CHECKS]
 
 
+def diagnose(ds: xr.Dataset) -> list[Diagnostic]:
+    """Run every check and record the list in ``ds.attrs["diagnostics"]`` (JSON); return it.
+
+    Warnings are not emitted here (see :func:`announce`).
+    """
+    checks = run_diagnostics(ds)
+    ds.attrs["diagnostics"] = to_json(checks)
+    return checks
+
+
 def to_json(diagnostics: list[Diagnostic]) -> str:
     """JSON list of ``{"check","status","message"}`` for the ``diagnostics`` attribute."""
     return json.dumps([asdict(d) for d in diagnostics], sort_keys=True)
 
 
-def announce(diagnostics: list[Diagnostic]) -> None:
-    """Emit every warning as a :class:`~qcorr.errors.QcorrWarning`."""
+def announce(diagnostics: list[Diagnostic], stacklevel: int = 2) -> None:
+    """Emit every warning as a :class:`~qcorr.errors.QcorrWarning`.
+
+    *stacklevel* is passed to :func:`warnings.warn` (2: the caller of this function).
+    """
     for d in diagnostics:
         if d.status != "ok":
-            warnings.warn(f"{d.check}: {d.message}", QcorrWarning, stacklevel=2)
+            warnings.warn(f"{d.check}: {d.message}", QcorrWarning, stacklevel=stacklevel)

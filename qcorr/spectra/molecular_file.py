@@ -35,6 +35,8 @@ __all__ = [
     "add_molecular_variables",
     "combine_molecular_parts",
     "has_molecular_variables",
+    "join_molecular_parts",
+    "molecular_parts_of",
     "self_diffusion_from_msd",
 ]
 
@@ -156,6 +158,7 @@ def add_molecular_variables(ds: xr.Dataset, parts: MolecularParts) -> xr.Dataset
     cm, one = "cm", "1"
 
     def var(dims, values, units, long_name, **extra):
+        """An xarray variable tuple with its CF ``units`` and ``long_name``."""
         return (dims, values, {"units": units, "long_name": long_name, **extra})
 
     data = {
@@ -198,8 +201,73 @@ def _check_same(values: list[np.ndarray], what: str, names: list[str]) -> None:
             )
 
 
+def molecular_parts_of(ds: xr.Dataset) -> MolecularParts:
+    """The :class:`MolecularParts` a spectrum dataset with molecular variables was made from.
+
+    Raw spectra are the stored ones divided by the dataset's normalisation factor
+    ``degrees_of_freedom / raw_integral``; moments and mean-square displacements are the
+    stored means with their frame and origin counts.
+    """
+    factor = (ds["degrees_of_freedom"] / ds["raw_integral"]).values[:, None, None]
+    return MolecularParts(
+        raw_translation=ds["vdos_translation_segments"].values / factor,
+        raw_rotation=ds["vdos_rotation_segments"].values / factor,
+        raw_residual=ds["vdos_vibration_residual_segments"].values / factor,
+        whole_molecule_count=ds["whole_molecule_count"].values.astype(np.int64),
+        molecule_kind_count=ds["molecule_kind_count"].values.astype(np.int64),
+        molecule_mass=ds["molecule_mass"].values,
+        rotational_dof=ds["rotational_dof_per_molecule"].values,
+        vibrational_dof=ds["vibrational_dof_per_molecule"].values,
+        principal_moments=ds["principal_moments"].values,
+        moment_frames=int(ds.attrs["principal_moment_frames"]),
+        msd_lag_ps=ds["displacement_lag"].values,
+        msd_A2=ds["mean_square_displacement"].values,
+        msd_origins=np.asarray(ds["displacement_origin_count"].values, dtype=float),
+        definition=str(ds.attrs["molecule_definition"]),
+    )
+
+
+def join_molecular_parts(parts: list[MolecularParts]) -> MolecularParts:
+    """Join the molecular parts of consecutive frame blocks (in block order) into one.
+
+    Raw per-segment spectra are concatenated along ``segment``; principal moments are
+    averaged with the blocks' frame counts as weights, mean-square displacements with
+    their time-origin counts (lags without origins in a block contribute nothing).  The
+    molecule layout (counts, masses, degrees of freedom) is the first block's.
+    """
+    if len(parts) == 1:
+        return parts[0]
+    frames = np.array([p.moment_frames for p in parts], dtype=float)
+    moments = sum(p.principal_moments * f for p, f in zip(parts, frames)) / frames.sum()
+    origins = np.array([p.msd_origins for p in parts], dtype=float)
+    sums = sum(np.where(o > 0, p.msd_A2 * o, 0.0) for p, o in zip(parts, origins))
+    total = origins.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        msd = np.where(total > 0, sums / total, np.nan)
+    first = parts[0]
+    return MolecularParts(
+        raw_translation=np.concatenate([p.raw_translation for p in parts], axis=1),
+        raw_rotation=np.concatenate([p.raw_rotation for p in parts], axis=1),
+        raw_residual=np.concatenate([p.raw_residual for p in parts], axis=1),
+        whole_molecule_count=first.whole_molecule_count,
+        molecule_kind_count=first.molecule_kind_count,
+        molecule_mass=first.molecule_mass,
+        rotational_dof=first.rotational_dof,
+        vibrational_dof=first.vibrational_dof,
+        principal_moments=moments,
+        moment_frames=int(frames.sum()),
+        msd_lag_ps=first.msd_lag_ps,
+        msd_A2=msd,
+        msd_origins=total,
+        definition=first.definition,
+    )
+
+
 def combine_molecular_parts(datasets: list[xr.Dataset], names: list[str]) -> MolecularParts | None:
     """The :class:`MolecularParts` of frame-block files in block order (None without molecular variables).
+
+    Checks that the blocks agree on the molecule layout, then joins
+    (:func:`molecular_parts_of`, :func:`join_molecular_parts`).
 
     Raises
     ------
@@ -227,38 +295,4 @@ def combine_molecular_parts(datasets: list[xr.Dataset], names: list[str]) -> Mol
         _check_same([ds[item].values for ds in datasets], f"'{item}'", names)
     _check_same([np.array(ds.attrs.get("molecule_definition", "")) for ds in datasets],
                 "'molecule_definition' (--molecules)", names)
-
-    def raw(name: str) -> np.ndarray:
-        pieces = []
-        for ds in datasets:
-            factor = (ds["degrees_of_freedom"] / ds["raw_integral"]).values
-            pieces.append(ds[name].values / factor[:, None, None])
-        return np.concatenate(pieces, axis=1)
-
-    frames = np.array([int(ds.attrs["principal_moment_frames"]) for ds in datasets], dtype=float)
-    moments = sum(ds["principal_moments"].values * f for ds, f in zip(datasets, frames)) / frames.sum()
-    origins = np.array([ds["displacement_origin_count"].values for ds in datasets], dtype=float)
-    sums = sum(np.where(o > 0, ds["mean_square_displacement"].values * o, 0.0)
-               for ds, o in zip(datasets, origins))
-    total = origins.sum(axis=0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        msd = np.where(total > 0, sums / total, np.nan)
-    first = datasets[0]
-    whole = first["whole_molecule_count"].values.astype(np.int64)
-    definition = str(first.attrs["molecule_definition"])
-    return MolecularParts(
-        raw_translation=raw("vdos_translation_segments"),
-        raw_rotation=raw("vdos_rotation_segments"),
-        raw_residual=raw("vdos_vibration_residual_segments"),
-        whole_molecule_count=whole,
-        molecule_kind_count=first["molecule_kind_count"].values.astype(np.int64),
-        molecule_mass=first["molecule_mass"].values,
-        rotational_dof=first["rotational_dof_per_molecule"].values,
-        vibrational_dof=first["vibrational_dof_per_molecule"].values,
-        principal_moments=moments,
-        moment_frames=int(frames.sum()),
-        msd_lag_ps=first["displacement_lag"].values,
-        msd_A2=msd,
-        msd_origins=total,
-        definition=definition,
-    )
+    return join_molecular_parts([molecular_parts_of(ds) for ds in datasets])
