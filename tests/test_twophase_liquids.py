@@ -325,3 +325,28 @@ def test_kinetic_temperature_imbalance_warns_only_beyond_two_percent_and_its_sca
     assert not any("not equipartitioned" in n for n in result_checks(gin, res, [res, res], 4.0, x, t)[0])
     gin, res = group(0.05, 0.2)  # segments scatter by ±20 %: the 5 % is within two standard errors
     assert not any("not equipartitioned" in n for n in result_checks(gin, res, [res, res], 4.0, x, t)[0])
+
+
+def test_auto_prefers_the_better_conditioned_route_and_refuses_a_negative_integral():
+    """auto: the VACF integral if its relative standard error is below 10 %, else the MSD; an
+    explicit vacf-integral that is not positive is refused with one line."""
+    from qcorr.errors import PhysicsError
+    from qcorr.thermo import twophase_evaluation as ev
+
+    ds = _labelled_liquid((500, 500))
+    lag = np.arange(256) * 0.0125
+    n_seg = ds.sizes["segment"]
+    scatter = np.array([1.0 + 0.6 * (-1) ** k for k in range(n_seg)])  # ±60 %: poorly conditioned
+    vacf = _exponential_vacf(lag, 4.0, 1.8)
+    raw = np.stack([vacf[None, :] * scatter[:, None] * float(ds["group_mass"].values[i]) for i in range(3)])
+    ds = ds.drop_vars(["vacf", "lag"]).assign_coords(lag=("lag", lag, {"units": "ps"}))
+    ds["vacf_segments_raw"] = (("group", "segment", "lag"), raw)
+    gin = ev.group_input(ds, 0, "total", "test")
+    gin.msd_diffusion_m2_per_s = 4.4e-9
+    common = {"temperature": T_LIQ, "volume": 1000 * VOLUME_PER_ATOM_A3, "with_segments": False}
+    chosen = ev._evaluate_group(ds, 0, gin, ev.checked_options(), **common)
+    assert chosen.info["diffusion_source_used"] == "msd"
+    ds["vacf_segments_raw"] = (("group", "segment", "lag"), -np.abs(raw))
+    with pytest.raises(PhysicsError, match="not positive") as info:
+        ev._evaluate_group(ds, 0, gin, ev.checked_options(diffusion_from="vacf-integral"), **common)
+    assert "\n" not in str(info.value)

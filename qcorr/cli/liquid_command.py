@@ -61,8 +61,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "(gas-particles) or V/N (all-particles, default: closest to thermodynamic "
                              "integration on Lennard-Jones liquids, see docs/liquids.md)")
     parser.add_argument("--diffusion-from", choices=DIFFUSION_SOURCES, default="auto",
-                        help="translational zero-frequency value: auto (default: the VACF integral when "
-                             "the file has the molecules' VACF, else the MSD), vacf-integral (Green-Kubo "
+                        help="translational zero-frequency value: auto (default: the VACF integral when it "
+                             "is positive with a relative standard error below 10 %, else the MSD), "
+                             "vacf-integral (Green-Kubo "
                              "integral over one segment), msd (Einstein slope), or spectrum (S(0) of the "
                              "tapered spectrum, biased high); all are reported")
     parser.add_argument("--viscosity", metavar="PA_S", type=float, default=None,

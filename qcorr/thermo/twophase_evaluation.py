@@ -222,18 +222,35 @@ def checked_options(
     )
 
 
+#: the VACF integral is well conditioned when its relative standard error is below this
+WELL_CONDITIONED_RELATIVE_ERROR = 0.10
+
+
+def well_conditioned(gk: GreenKuboDiffusion) -> bool:
+    """True if the Green-Kubo D is positive with a relative standard error below
+    :data:`WELL_CONDITIONED_RELATIVE_ERROR` (our limit); ``auto`` then prefers it to the MSD."""
+    return gk.value > 0 and math.isfinite(gk.standard_error) and (
+        gk.standard_error < WELL_CONDITIONED_RELATIVE_ERROR * gk.value)
+
+
 def vacf_diffusion(ds: xr.Dataset, g: int, gin: GroupInput, effective_segments: float
                    ) -> GreenKuboDiffusion | None:
     """Green-Kubo D of group *g* from the spectrum file's per-segment VACF (m²/s), or None.
 
-    Only for groups of one-atom molecules, whose atomic VACF is the translational one: the
-    mass-weighted sums ``vacf_segments_raw`` (g/mol Å²/ps²) divided by the group's mass give
-    ⟨v(0)·v(t)⟩ per atom (:func:`qcorr.thermo.diffusion.green_kubo_diffusion`).
+    From the centre-of-mass VACF of ``qcorr spectrum --molecular``
+    (``vacf_translation_segments_raw``, Σ M ⟨V(0)·V(t)⟩ in g/mol Å²/ps²) divided by the
+    molecules' total mass; for one-atom molecules without it, from the atomic VACF
+    (``vacf_segments_raw`` divided by the group's mass), which is the same thing
+    (:func:`qcorr.thermo.diffusion.green_kubo_diffusion`).  None when neither is there.
     """
-    if int(ds["atom_count"].values[g]) != gin.molecule_count or "vacf_segments_raw" not in ds.variables:
-        return None  # molecules of several atoms: the atomic VACF is not the centres' VACF
-    mass = float(ds["group_mass"].values[g])
-    raw = np.asarray(ds["vacf_segments_raw"].values[g], dtype=float)
+    if "vacf_translation_segments_raw" in ds.variables and gin.source == "molecular decomposition":
+        raw = np.asarray(ds["vacf_translation_segments_raw"].values[g], dtype=float)
+        mass = gin.molecule_count * gin.mass_u
+    elif int(ds["atom_count"].values[g]) == gin.molecule_count and "vacf_segments_raw" in ds.variables:
+        raw = np.asarray(ds["vacf_segments_raw"].values[g], dtype=float)
+        mass = float(ds["group_mass"].values[g])
+    else:
+        return None  # molecules of several atoms in an older file: no centre-of-mass VACF
     if not (mass > 0 and raw.shape[-1] >= 8 and np.all(np.isfinite(raw))):
         return None
     return green_kubo_diffusion(ds["lag"].values, raw / mass, effective_segments)
@@ -255,9 +272,10 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
     d_spectrum = self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count, t_kin, gin.mass_u)
     gk = vacf_diffusion(ds, g, gin, segment_effective_count(ds))
     source = opts.diffusion_from
+    has_msd = math.isfinite(gin.msd_diffusion_m2_per_s)
     if source == "auto":
-        source = "vacf-integral" if gk is not None else ("msd" if math.isfinite(gin.msd_diffusion_m2_per_s)
-                                                         else "spectrum")
+        source = ("vacf-integral" if gk is not None and (well_conditioned(gk) or not has_msd) and gk.value > 0
+                  else "msd" if has_msd else "spectrum")
         if source == "spectrum":
             notes.append(f"group '{name}': no taper-free diffusion coefficient in the spectrum file (no VACF of "
                          "the molecules, no MSD); the fluidicity uses S(0) of the tapered spectrum, biased high")
@@ -266,8 +284,12 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
                            "which the spectrum file lacks; remake it with 'qcorr spectrum --molecular'")
     if source == "vacf-integral" and gk is None:
         raise PhysicsError(f"group '{name}': --diffusion-from vacf-integral needs the VACF of the molecules' "
-                           "centres of mass, which the spectrum file holds only for one-atom molecules; "
-                           "use --diffusion-from msd")
+                           "centres of mass, which this spectrum file lacks; remake it with this qcorr's "
+                           "'qcorr spectrum --molecular' or use --diffusion-from msd")
+    if source == "vacf-integral" and not gk.value > 0:
+        raise PhysicsError(f"group '{name}': the VACF integral over one segment ({gk.window_ps:g} ps) gives "
+                           f"D = {gk.value:.3g} m2/s, not positive; use longer segments (--segment-ps) or "
+                           "--diffusion-from msd")
     d_correction = 0.0
     if opts.viscosity_Pa_s is not None:
         d_correction = finite_size_diffusion_correction(temperature, opts.viscosity_Pa_s,
@@ -283,7 +305,12 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
         s0_segments = [s0_of(d_used)] * n_seg
     elif source == "vacf-integral":
         d_used = gk.value + d_correction
-        s0_segments = [s0_of(d + d_correction) for d in gk.per_segment]
+        if min(gk.per_segment, default=0.0) + d_correction > 0:
+            s0_segments = [s0_of(d + d_correction) for d in gk.per_segment]
+        else:  # a segment's integral is not positive: hold S(0) fixed, as for the MSD
+            s0_segments = [s0_of(d_used)] * n_seg
+            notes.append(f"group '{name}': a segment's VACF integral is not positive; S(0) is held at the "
+                         "mean for the standard errors, which then leave out its scatter")
     else:
         d_used = d_spectrum + d_correction
         s0_segments = [float(v[0]) + s0_of(d_correction) for v in gin.part_segments["translation"]]
