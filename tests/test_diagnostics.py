@@ -25,7 +25,7 @@ import xarray as xr
 from scipy import stats
 
 from qcorr.spectra import diagnostics
-from qcorr.spectra.spectrum_file import assemble_spectrum, group_table
+from qcorr.spectra.assemble import assemble_spectrum, group_table
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "resources" / "demo"

@@ -22,11 +22,11 @@ from qcorr.outputs import summary, table
 
 
 def _row(**changes) -> table.TableRow:
-    base = dict(system="crystal", group="total", method="harmonic", property="heat_capacity",
-                temperature_K=100.0, basis="per_mole_atoms", unit=units.MOLAR_HEAT_CAPACITY,
-                classical=24.94338, quantum=16.24961, correction=-8.69377,
-                classical_se=2.3e-15, quantum_se=0.0312, correction_se=0.0312,
-                classical_source="harmonic_model")
+    base = {"system": "crystal", "group": "total", "method": "harmonic",
+            "property": "heat_capacity", "temperature_K": 100.0, "basis": "per_mole_atoms",
+            "unit": units.MOLAR_HEAT_CAPACITY, "classical": 24.94338, "quantum": 16.24961,
+            "correction": -8.69377, "classical_se": 2.3e-15, "quantum_se": 0.0312,
+            "correction_se": 0.0312, "classical_source": "harmonic_model"}
     base.update(changes)
     return table.TableRow(**base)
 
