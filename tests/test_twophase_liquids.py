@@ -14,10 +14,10 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+import spectra
 from scipy import constants as sc
 from scipy import integrate
 
-import spectra
 from qcorr.errors import ConfigError
 from qcorr.thermo import twophase as tp
 from qcorr.thermo.twophase_checks import gas_share_beyond, zero_point_energy_drift_per_efold
@@ -319,7 +319,7 @@ def test_kinetic_temperature_imbalance_warns_only_beyond_two_percent_and_its_sca
     temps = component_temperatures(gin, x, t, 4.0)
     assert temps["translation"][0] == pytest.approx(0.95 * t, rel=1e-9)
     assert temps["rotation"][0] == pytest.approx(1.05 * t, rel=1e-9)
-    notes, info = result_checks(gin, res, [res, res], 4.0, x, t)
+    notes, _ = result_checks(gin, res, [res, res], 4.0, x, t)
     assert sum("not equipartitioned" in n for n in notes) == 2
     gin, res = group(0.01, 0.0)
     assert not any("not equipartitioned" in n for n in result_checks(gin, res, [res, res], 4.0, x, t)[0])

@@ -18,8 +18,8 @@ from qcorr.safe_write import atomic_path
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo import twophase_table
 from qcorr.thermo.hard_sphere_gas import GAS_VOLUME_CHOICES, HARD_SPHERE_FORMS
-from qcorr.thermo.twophase_evaluation import DIFFUSION_SOURCES
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES
+from qcorr.thermo.twophase_evaluation import DIFFUSION_SOURCES
 
 NAME = "liquid"
 HELP = "absolute entropy, free energy, energy, heat capacity of liquids by the two-phase model (2PT)"
@@ -62,7 +62,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "integration on Lennard-Jones liquids, see docs/liquids.md)")
     parser.add_argument("--diffusion-from", choices=DIFFUSION_SOURCES, default="auto",
                         help="translational zero-frequency value: auto (default: the VACF integral when it "
-                             "is positive with a relative standard error below 10 %, else the MSD), "
+                             "is positive with a relative standard error below 10 %%, else the MSD), "
                              "vacf-integral (Green-Kubo "
                              "integral over one segment), msd (Einstein slope), or spectrum (S(0) of the "
                              "tapered spectrum, biased high); all are reported")
