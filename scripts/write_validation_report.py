@@ -718,8 +718,9 @@ def argon_comparisons(spec, settings: dict, frame, spectrum_path: Path, liquid_f
                 ),
                 reference_status="standard reference equation of state",
                 not_tested_because=(
-                    "a Lennard-Jones model is compared with real argon; the model's own entropy at this state "
-                    "(from a Lennard-Jones equation of state) is the proper reference and is not implemented here"
+                    "a Lennard-Jones model is compared with real argon; the model's own entropy at this state, by "
+                    "thermodynamic integration, is the proper reference: tests/test_liquid_validation.py and "
+                    "docs/liquids.md compare 2PT with it (default -1.0 %)"
                 ),
                 explanation=(
                     "2PT (S.-T. Lin, M. Blanco, W. A. Goddard III, J. Chem. Phys. 119, 11792 (2003)) splits the "

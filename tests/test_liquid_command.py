@@ -360,7 +360,8 @@ def test_lennard_jones_argon_liquid_entropy_against_jzg_equation_of_state(tmp_pa
     (2003) validated it against LJ equation-of-state entropies to a few percent [from
     memory, not re-read], and the hard-sphere entropy convention alone moves the result
     by f ln z (about 7 % here; Sun et al., J. Chem. Phys. 147, 194505 (2017) list it among
-    the choices that change 2PT entropies).  The two conventions must bracket the EOS.
+    the choices that change 2PT entropies).  With the gas volume V/(fN) the two conventions
+    must bracket the EOS; the default (V/N) must lie within the same 5 %.
     """
     import MDAnalysis as mda
     import synthetic
@@ -391,7 +392,7 @@ def test_lennard_jones_argon_liquid_entropy_against_jzg_equation_of_state(tmp_pa
     for form in ("published", "constant-volume"):
         out = tmp_path / f"{form}.csv"
         code, _, err = run_qcorr("liquid", spectrum, "--output", out, "--quiet",
-                                 "--hard-sphere-entropy", form)
+                                 "--hard-sphere-entropy", form, "--gas-volume", "gas-particles")
         assert code == 0, err
         results[form] = _row(pd.read_csv(out), "total", "entropy")
         side = json.loads(out.with_suffix(".json").read_text())["groups"]["total"]
@@ -406,6 +407,13 @@ def test_lennard_jones_argon_liquid_entropy_against_jzg_equation_of_state(tmp_pa
     assert s_pub == pytest.approx(s_eos, rel=0.05)
     assert s_cv == pytest.approx(s_eos, rel=0.05)
     assert s_cv < s_eos < s_pub
+    # the default (published form, gas volume V/N) within the same 5 %
+    out = tmp_path / "default.csv"
+    code, _, err = run_qcorr("liquid", spectrum, "--output", out, "--quiet")
+    assert code == 0, err
+    s_default = _row(pd.read_csv(out), "total", "entropy")["classical"]
+    print(f"default {s_default / R:.4f} ({s_default / s_eos - 1:+.2%})")
+    assert s_default == pytest.approx(s_eos, rel=0.05)
     # both diffusion routes (Green-Kubo S(0) and Einstein MSD) agree within 10 %
     d_s0, d_msd = side["self_diffusion_from_spectrum_m2_per_s"], side["self_diffusion_from_msd_m2_per_s"]
     assert d_s0 == pytest.approx(d_msd, rel=0.10)

@@ -440,6 +440,7 @@ def test_molecular_frame_blocks_combine_to_the_single_job(tmp_path, run_qcorr, s
         assert read_spectrum(candidates[-1]).attrs["worker_processes"] == 3
     a = read_spectrum(single)
     assert "mean_square_displacement" in a.data_vars
+    assert "vacf_translation_segments_raw" in a.data_vars  # centre-of-mass VACF, joined per segment too
     for candidate in candidates:
         b = read_spectrum(candidate)
         assert set(a.data_vars) == set(b.data_vars)

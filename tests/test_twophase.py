@@ -237,11 +237,12 @@ def test_gas_and_solid_split_conserves_dof_and_options():
     s = 3 * n * (0.3 * _ou_dos(x, 4.0, 1.0) / np.trapezoid(_ou_dos(x, 4.0, 1.0), x)
                  + 0.7 * x**2 * np.exp(-x / 20) / np.trapezoid(x**2 * np.exp(-x / 20), x))
     res = tp.two_phase_component("translation", x, s, molecule_count=n, temperature_K=t,
-                                 mass_u=m, volume_A3=vol)
+                                 mass_u=m, volume_A3=vol, gas_volume="gas-particles")
     assert np.trapezoid(res.gas_dos, x) == pytest.approx(3 * n * res.fluidicity, rel=2e-3)
     assert np.trapezoid(res.gas_dos + res.solid_dos, x) == pytest.approx(3 * n, rel=1e-9)
     alt = tp.two_phase_component("translation", x, s, molecule_count=n, temperature_K=t,
-                                 mass_u=m, volume_A3=vol, hard_sphere_form="constant-volume")
+                                 mass_u=m, volume_A3=vol, hard_sphere_form="constant-volume",
+                                 gas_volume="gas-particles")
     z = hs.carnahan_starling_compressibility(res.packing_fraction)
     assert res.entropy - alt.entropy == pytest.approx(res.fluidicity * math.log(z), rel=1e-9)
     allp = tp.two_phase_component("translation", x, s, molecule_count=n, temperature_K=t,

@@ -8,18 +8,19 @@ spectra), :mod:`qcorr.outputs.table` writes and prints it.
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from pathlib import Path
 
+from qcorr.cli.liquid_options import parse_md_energies, parse_mixtures, parse_symmetry_numbers
 from qcorr.cli.option_types import finite_number
-from qcorr.errors import ConfigError
+from qcorr.cli.properties_command import parse_frozen_bonds
 from qcorr.outputs import summary, table
 from qcorr.safe_write import check_output
 from qcorr.spectra.spectrum_file import read_spectrum, write_netcdf_atomic
 from qcorr.thermo import twophase_table
 from qcorr.thermo.hard_sphere_gas import GAS_VOLUME_CHOICES, HARD_SPHERE_FORMS
 from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES
+from qcorr.thermo.twophase_evaluation import DIFFUSION_SOURCES
 
 NAME = "liquid"
 HELP = "absolute entropy, free energy, energy, heat capacity of liquids by the two-phase model (2PT)"
@@ -56,13 +57,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         default="published",
                         help="published: with ln z(y) (reference gas at the hard-sphere pressure; "
                              "default); constant-volume: Carnahan-Starling entropy at fixed N, V, T")
-    parser.add_argument("--gas-volume", choices=GAS_VOLUME_CHOICES, default="gas-particles",
+    parser.add_argument("--gas-volume", choices=GAS_VOLUME_CHOICES, default="all-particles",
                         help="volume per gas particle in the hard-sphere entropy: V/(fN) "
-                             "(gas-particles, default) or V/N (all-particles)")
-    parser.add_argument("--diffusion-from", choices=("spectrum", "msd"), default="spectrum",
-                        help="translational zero-frequency value from the spectrum S(0) (default) or "
-                             "from the mean-square-displacement diffusion coefficient; both are "
-                             "always reported")
+                             "(gas-particles) or V/N (all-particles, default: closest to thermodynamic "
+                             "integration on Lennard-Jones liquids, see docs/liquids.md)")
+    parser.add_argument("--diffusion-from", choices=DIFFUSION_SOURCES, default="auto",
+                        help="translational zero-frequency value: auto (default: the VACF integral when it "
+                             "is positive with a relative standard error below 10 %%, else the MSD), "
+                             "vacf-integral (Green-Kubo "
+                             "integral over one segment), msd (Einstein slope), or spectrum (S(0) of the "
+                             "tapered spectrum, biased high); all are reported")
     parser.add_argument("--viscosity", metavar="PA_S", type=finite_number, default=None,
                         help="shear viscosity in Pa s: add the Yeh-Hummer finite-size correction "
                              "2.837297 kT/(6 pi eta L) (cubic box, L = volume^(1/3)) to the "
@@ -80,44 +84,23 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         default=[],
                         help="mean total (kinetic + potential) MD energy of the group per mole of "
                              "its molecules, kJ/mol; makes energy and free energy absolute")
+    parser.add_argument("--pressure", metavar="BAR", type=finite_number, default=None,
+                        help="mean MD pressure in bar: with --md-energy adds enthalpy H = E + pV and Gibbs "
+                             "energy G = A + pV (kJ/mol) for a group holding every atom, or a mixture")
+    parser.add_argument("--mixture", metavar="NAME=GROUP1,GROUP2,...", action="extend", nargs="+", default=[],
+                        help="groups (one kind of molecule each) that together form a liquid mixture: "
+                             "each is evaluated at the total density and rows NAME (per mole of all "
+                             "their molecules) add the ideal mixing entropy")
+    parser.add_argument("--temperatures", metavar="K", type=finite_number, nargs="+", default=None,
+                        help="temperature scan in K: at each other temperature, only the quantum "
+                             "corrections of the solid-like parts (spectrum of the MD temperature)")
+    parser.add_argument("--frozen-bond-wavenumbers", metavar="GROUP=W1,W2,...", action="extend", nargs="+",
+                        default=[], help="wavenumbers in cm-1 of the bonds constrained in the MD (rigid "
+                                         "models), per molecule of GROUP: rows of method frozen_bond_addon")
     parser.add_argument("--split-output", metavar="SPLIT.nc", default=None,
                         help="also write the gas-like and solid-like spectra of every component "
                              "(NetCDF, cm per cm-1)")
     parser.add_argument("--quiet", action="store_true", help="do not print the table")
-
-
-def parse_symmetry_numbers(items: list[str]) -> tuple[int | None, dict[str, int]]:
-    """``N`` and ``GROUP=N`` strings -> (default for all groups or None, per-group dict)."""
-    default: int | None = None
-    per: dict[str, int] = {}
-    for item in items:
-        group, sep, text = item.rpartition("=")
-        try:
-            value = int(text)
-        except ValueError:
-            raise ConfigError(f"--symmetry-number '{item}': expected N or GROUP=N with N an integer >= 1") from None
-        if value < 1:
-            raise ConfigError(f"--symmetry-number '{item}': the symmetry number must be >= 1")
-        if sep:
-            per[group] = value
-        else:
-            default = value
-    return default, per
-
-
-def parse_md_energies(items: list[str]) -> dict[str, float]:
-    """``GROUP=KJ_PER_MOL`` strings -> ``{group: value}``."""
-    out: dict[str, float] = {}
-    for item in items:
-        group, sep, text = item.partition("=")
-        try:
-            value = float(text)
-        except ValueError:
-            value = float("nan")
-        if not sep or not group or not math.isfinite(value):
-            raise ConfigError(f"--md-energy '{item}': expected GROUP=KJ_PER_MOL with a finite number")
-        out[group] = value
-    return out
 
 
 def run(args: argparse.Namespace) -> int:
@@ -133,11 +116,14 @@ def run(args: argparse.Namespace) -> int:
         "hard_sphere_entropy": args.hard_sphere_entropy, "gas_volume": args.gas_volume,
         "diffusion_from": args.diffusion_from, "viscosity_Pa_s": args.viscosity,
         "vibration_spectrum": args.vibration_spectrum, "volume_A3": args.volume,
-        "source": spectrum_path,
+        "mixtures": parse_mixtures(args.mixture), "source": spectrum_path,
     }
     md_energies = parse_md_energies(args.md_energy)
     ds = read_spectrum(spectrum_path)
-    frame = twophase_table.two_phase_properties(ds, system=args.system, md_energies_kJ_per_mol=md_energies, **options)
+    frame = twophase_table.two_phase_properties(
+        ds, system=args.system, md_energies_kJ_per_mol=md_energies, temperatures_K=args.temperatures,
+        frozen_bond_wavenumbers_cm=parse_frozen_bonds(args.frozen_bond_wavenumbers),
+        pressure_bar=args.pressure, **options)
     frame.attrs = {"command_line": getattr(args, "command_line", ""), **frame.attrs,
                    "input_spectrum": table.file_record(spectrum_path)}
     for name, info in frame.attrs["groups"].items():

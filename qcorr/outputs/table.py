@@ -47,14 +47,16 @@ FILE_KIND = "property_table"
 #: the columns, in order, with their meaning (also written to the sidecar)
 COLUMNS: dict[str, str] = {
     "system": "system identifier (--system; defaults to the spectrum file's stem)",
-    "group": "atom group of the spectrum file",
+    "group": "atom group of the spectrum file (or a 2PT mixture of groups)",
     "method": "harmonic (Berens weighting functions), frozen_bond_addon (user-given "
     "wavenumbers of constrained bonds), 2pt (two-phase model), or corrected (a classical "
     "value measured from the runs plus the harmonic quantum correction: the observable to "
     "publish)",
     "property": "heat_capacity (C_V), energy (zero-point energy included), thermal_energy "
     "(excluded), zero_point_energy, entropy, helmholtz_free_energy, "
-    "mean_square_displacement, mean_square_displacement_ratio; for method corrected also "
+    "mean_square_displacement, mean_square_displacement_ratio; 2pt also entropy_translation, "
+    "entropy_rotation, entropy_vibration, entropy_mixing (ideal mixing of a mixture), enthalpy and "
+    "gibbs_free_energy (with an MD energy and pressure); for method corrected also "
     "isobaric_heat_capacity (C_P), enthalpy, gibbs_free_energy, vaporisation_enthalpy",
     "temperature_K": "temperature at which the property is evaluated, K",
     "basis": "per_mole_molecules, per_mole_atoms, per_system, or atom_mean (mass-weighted "

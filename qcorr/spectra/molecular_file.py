@@ -74,6 +74,11 @@ class MolecularParts:
         Time origins averaged at each lag.
     definition : str
         ``"residue"`` or ``"fragment"``.
+    translation_correlation : float array (n_groups, n_segments, n_lags) or None
+        Unbiased Σ_molecules M ⟨V(0)·V(t)⟩ of the centre-of-mass velocities of each
+        segment (u Å²/ps², lags of the atomic ``lag`` axis): the translational VACF, whose
+        Green–Kubo integral gives a diffusion coefficient free of the spectrum's taper
+        (:mod:`qcorr.thermo.diffusion`).  None in files made before it was kept.
     """
 
     raw_translation: NDArray[np.float64]
@@ -90,6 +95,7 @@ class MolecularParts:
     msd_A2: NDArray[np.float64]
     msd_origins: NDArray[np.float64]
     definition: str
+    translation_correlation: NDArray[np.float64] | None = None
 
 
 def self_diffusion_from_msd(lag_ps: NDArray[np.float64], msd_A2: NDArray[np.float64],
@@ -184,6 +190,12 @@ def add_molecular_variables(ds: xr.Dataset, parts: MolecularParts) -> xr.Dataset
         "mean_square_displacement": var(("group", "displacement_lag"), msd, units.AREA, "mean-square displacement of the molecules' unwrapped centres of mass (NaN: group not made of whole molecules)"),
         "displacement_origin_count": var(("displacement_lag",), np.asarray(parts.msd_origins, dtype=np.int64), one, "time origins averaged at each lag of mean_square_displacement"),
     }
+    if parts.translation_correlation is not None:
+        corr = np.where(usable[:, None, None], np.asarray(parts.translation_correlation, dtype=np.float64), np.nan)
+        data["vacf_translation_segments_raw"] = var(
+            ("group", "segment", "lag"), corr, units.MASS_VELOCITY_SQUARED,
+            "unbiased sum over molecules of M <V(0).V(t)> of the centre-of-mass velocities, each segment "
+            "(NaN: group not made of whole molecules)")
     out = ds.assign_coords(displacement_lag=(("displacement_lag",), np.asarray(parts.msd_lag_ps, dtype=np.float64), {"units": "ps", "long_name": "time lag of the mean-square displacement"}))
     out = out.assign(data)
     out.attrs["principal_moment_frames"] = int(parts.moment_frames)
@@ -225,13 +237,16 @@ def molecular_parts_of(ds: xr.Dataset) -> MolecularParts:
         msd_A2=ds["mean_square_displacement"].values,
         msd_origins=np.asarray(ds["displacement_origin_count"].values, dtype=float),
         definition=str(ds.attrs["molecule_definition"]),
+        translation_correlation=(ds["vacf_translation_segments_raw"].values
+                                 if "vacf_translation_segments_raw" in ds.variables else None),
     )
 
 
 def join_molecular_parts(parts: list[MolecularParts]) -> MolecularParts:
     """Join the molecular parts of consecutive frame blocks (in block order) into one.
 
-    Raw per-segment spectra are concatenated along ``segment``; principal moments are
+    Raw per-segment spectra (and centre-of-mass VACFs, when every block has them) are
+    concatenated along ``segment``; principal moments are
     averaged with the blocks' frame counts as weights, mean-square displacements with
     their time-origin counts (lags without origins in a block contribute nothing).  The
     molecule layout (counts, masses, degrees of freedom) is the first block's.
@@ -261,6 +276,8 @@ def join_molecular_parts(parts: list[MolecularParts]) -> MolecularParts:
         msd_A2=msd,
         msd_origins=total,
         definition=first.definition,
+        translation_correlation=(None if any(p.translation_correlation is None for p in parts) else
+                                 np.concatenate([p.translation_correlation for p in parts], axis=1)),
     )
 
 

@@ -258,4 +258,5 @@ class MolecularPass:
             msd_A2=msd,
             msd_origins=self.msd.origin_counts,
             definition=self.definition,
+            translation_correlation=powers.correlation[:n_groups],
         )

@@ -17,20 +17,31 @@ Conventions (all functions, no I/O here):
 * Results are per molecule in units of k (entropy, heat capacity) or kT
   (energies); conversions to J/(mol K) and kJ/mol use ``qcorr.constants``.
 
-Choices that the literature does not settle are explicit arguments, and the
-defaults follow the published 2PT papers as reproduced in the team notes
-(``methods.md`` §3; the exact printed typography of [1]_ and [2]_ was not
-re-read for this implementation — see
-:func:`qcorr.thermo.hard_sphere_gas.hard_sphere_entropy`):
+Sources.  The equations here (Δ, the fluidicity equation, the Lorentzian gas spectrum,
+the hard-sphere entropy, the rigid-rotor gas, the weights) are the team's reconstruction of
+[1]_ and [2]_ (``methods.md`` §3), checked for internal consistency (sum rules, limits, the
+Carnahan–Starling form of the fluidicity equation, the Sackur–Tetrode and rigid-rotor limits;
+``tests/test_twophase.py``).  They were *not* checked against the printed papers: in the
+stored copies available to us only the abstracts of [1]_ and [2]_ could be read (searches
+for the body text of both, and of the refinements of Desjarlais, Phys. Rev. E 88, 062145
+(2013) and Sun et al., J. Chem. Phys. 147, 194505 (2017), returned abstracts only), so no
+printed equation number can be given.  The defaults are validated against thermodynamic
+integration instead (``docs/liquids.md``, ``tests/test_liquid_validation.py``).
+
+Choices that the literature, as far as it could be read, does not settle are explicit
+arguments:
 
 * ``hard_sphere_form="published"`` keeps the ``ln z(y)`` term inside the
   logarithm of the HS entropy (the reference ideal gas is taken at the
   pressure of the HS gas); ``"constant-volume"`` drops it, which is the
   Carnahan–Starling entropy of fN hard spheres in the volume V at fixed
   (N, V, T) [3]_.  The two differ by ``k ln z`` per gas particle.
-* ``gas_volume="gas-particles"`` uses V/(fN) (the volume per *gas* particle,
-  consistent with the gas packing fraction y, which is computed from the gas
-  density fN/V); ``"all-particles"`` uses V/N.
+* ``gas_volume="all-particles"`` (default) uses V/N; ``"gas-particles"`` uses V/(fN)
+  (the volume per *gas* particle, consistent with the gas packing fraction y, which
+  is computed from the gas density fN/V).  The default is an empirical choice: with
+  ``hard_sphere_form="published"`` it is the variant closest to thermodynamic
+  integration on the Lennard-Jones references (``docs/liquids.md``); no derivation
+  of ours supports V/N over V/(fN).
 * The rotational fluidicity is either obtained from the rotational S(0) with
   the same Δ → f equation (default, as described for [2]_ in the team notes)
   or set equal to the translational fluidicity.
@@ -62,7 +73,6 @@ from numpy.typing import ArrayLike, NDArray
 
 from qcorr import constants as C
 from qcorr.errors import ConfigError, PhysicsError
-from qcorr.thermo import weights
 from qcorr.thermo.hard_sphere_gas import (
     GAS_VOLUME_CHOICES,
     fluidicity,
@@ -72,9 +82,9 @@ from qcorr.thermo.hard_sphere_gas import (
     normalized_diffusivity,
 )
 from qcorr.thermo.rigid_rotor import rigid_rotor_entropy, rotational_temperatures
+from qcorr.thermo.solid_weights import SOLID_WEIGHTS, weighted_integral
 
 ROTATIONAL_FLUIDICITY_CHOICES = ("from-rotation", "same-as-translation")
-SOLID_WEIGHTS = ("quantum", "classical")
 
 __all__ = [
     "ROTATIONAL_FLUIDICITY_CHOICES",
@@ -87,91 +97,6 @@ __all__ = [
     "vibrational_component",
     "weighted_integral",
 ]
-
-
-def _weights(u: NDArray[np.float64], kind: str) -> dict[str, NDArray[np.float64]]:
-    """Per-mode weights (Berens et al. [4]_, from :mod:`qcorr.thermo.weights`); u > 0.
-
-    Entropy in k, energy in kT (zero-point energy included), heat capacity in k.
-    """
-    if kind == "classical":
-        return {
-            "entropy": weights.entropy_classical(u),
-            "energy": weights.energy_classical(u),
-            "heat_capacity": weights.heat_capacity_classical(u),
-            "energy_minus_classical": np.zeros_like(u),
-        }
-    return {
-        "entropy": weights.entropy_quantum(u),
-        "energy": weights.energy_quantum(u),
-        "heat_capacity": weights.heat_capacity_quantum(u),
-        "energy_minus_classical": weights.energy_correction(u),
-    }
-
-
-_GAUSS_X, _GAUSS_W = np.polynomial.legendre.leggauss(24)
-
-
-def weighted_integral(
-    wavenumber_cm: ArrayLike,
-    dos_cm: ArrayLike,
-    temperature_K: float,
-    weighting: str = "quantum",
-) -> dict[str, float]:
-    """Integrals of a DoS against the harmonic weighting functions.
-
-    Parameters
-    ----------
-    wavenumber_cm : array (n,)
-        Evenly or unevenly spaced, increasing grid in cm⁻¹ starting at 0.
-    dos_cm : array (..., n)
-        DoS per unit wavenumber (cm); leading axes are kept.
-    temperature_K : float
-        Temperature in K that enters u = hcν̃/kT.
-    weighting : {"quantum", "classical"}
-        Quantum harmonic oscillator or classical harmonic oscillator weights.
-
-    Returns
-    -------
-    dict
-        ``entropy`` (units of k), ``energy`` (units of kT, zero-point energy
-        included for quantum weights; equals the dof for classical weights),
-        ``heat_capacity`` (units of k), ``energy_minus_classical`` (kT;
-        ∫S (W_E − 1) dν̃), and ``dof`` (∫S dν̃).  Arrays keep the leading axes.
-
-    Notes
-    -----
-    The entropy weight diverges logarithmically at ν → 0 (``methods.md`` §1.5),
-    so it is never evaluated at ν = 0: the interval [ν₀, ν₁] is integrated with
-    24-point Gauss–Legendre quadrature of the linearly interpolated DoS (nodes
-    avoid the end points), every other interval with the trapezoid rule.
-    """
-    if weighting not in SOLID_WEIGHTS:
-        raise ConfigError(f"weighting={weighting!r} is not one of {SOLID_WEIGHTS}")
-    x = np.asarray(wavenumber_cm, dtype=float)
-    s = np.asarray(dos_cm, dtype=float)
-    if x.ndim != 1 or x.size < 3 or s.shape[-1] != x.size:
-        raise ConfigError("wavenumber grid must be 1-D with >= 3 points matching the DoS")
-    if temperature_K <= 0:
-        raise ConfigError(f"temperature {temperature_K} K must be positive")
-    if x[0] != 0.0:
-        raise ConfigError("wavenumber grid must start at 0 cm-1")
-    c2 = C.second_radiation_constant_cm_K
-    u = c2 * x[1:] / temperature_K
-    w = _weights(u, weighting)
-    dx = np.diff(x)
-    # first interval: Gauss-Legendre on the linear interpolant of S
-    xg = 0.5 * x[1] * (_GAUSS_X + 1.0)
-    sg = s[..., :1] + (s[..., 1:2] - s[..., :1]) * (xg / x[1])
-    wg = _weights(c2 * xg / temperature_K, weighting)
-    out: dict[str, float] = {}
-    for name in ("entropy", "energy", "heat_capacity", "energy_minus_classical"):
-        first = 0.5 * x[1] * np.sum(sg * wg[name] * _GAUSS_W, axis=-1)
-        f = s[..., 1:] * w[name]
-        rest = np.sum(0.5 * (f[..., 1:] + f[..., :-1]) * dx[1:], axis=-1)
-        out[name] = first + rest
-    out["dof"] = np.trapezoid(s, x, axis=-1)
-    return out
 
 
 # --------------------------------------------------------------------------
@@ -212,6 +137,9 @@ class ComponentResult:
         values show where the HS gas exceeds the DoS.
     gas_dos, solid_dos : ndarray
         DoS of the parts for all N molecules (cm).
+    gas_dof : float
+        Gas degrees of freedom G = f × (3 or 2 or 3) × N of the Lorentzian over [0, ∞)
+        (its part on the grid is less when the grid ends early).
     """
 
     component: str
@@ -231,6 +159,7 @@ class ComponentResult:
     solid_dos_minimum: float
     gas_dos: NDArray[np.float64] = field(repr=False)
     solid_dos: NDArray[np.float64] = field(repr=False)
+    gas_dof: float = 0.0
 
 
 def _solid_result(
@@ -271,6 +200,7 @@ def _solid_result(
         solid_dos_minimum=float(np.min(solid)) / n,
         gas_dos=gas,
         solid_dos=solid,
+        gas_dof=gas_dof,
     )
 
 
@@ -288,8 +218,9 @@ def two_phase_component(
     principal_moments_u_A2: ArrayLike | None = None,
     symmetry_number: int = 1,
     hard_sphere_form: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     dof_per_molecule: int | None = None,
+    density_molecule_count: float | None = None,
 ) -> ComponentResult:
     """Split a translational or rotational DoS into HS gas + solid and weight both.
 
@@ -319,6 +250,10 @@ def two_phase_component(
         Nominal degrees of freedom per molecule of this motion (3 for translation,
         2 or 3 for rotation), which sets the gas dof 3fN or 2fN; default: the
         DoS integral per molecule, rounded.
+    density_molecule_count : float, optional
+        Molecules whose number density N_ρ/V enters Δ and the gas volume (V/(f N_ρ) or
+        V/N_ρ); default N.  A component of a mixture is evaluated at the total density
+        (:mod:`qcorr.thermo.twophase_mixture`).
 
     Returns
     -------
@@ -338,6 +273,8 @@ def two_phase_component(
     x = np.asarray(wavenumber_cm, dtype=float)
     s = np.asarray(dos_cm, dtype=float)
     n = float(molecule_count)
+    if not (n > 0 and math.isfinite(n)):
+        raise PhysicsError(f"{component}: 2PT needs a positive molecule count; got {molecule_count}")
     dof = float(np.trapezoid(s, x))
     if dof_per_molecule is None:
         dof_per_molecule = round(dof / n) if n > 0 else 0
@@ -349,7 +286,9 @@ def two_phase_component(
     s0 = float(s[0]) if zero_frequency_dos_cm is None else float(zero_frequency_dos_cm)
     if s0 < 0 or not math.isfinite(s0):
         raise PhysicsError(f"{component}: DoS at zero frequency is {s0} cm; it must be >= 0")
-    delta = normalized_diffusivity(s0, n, temperature_K, mass_u, volume_A3)
+    n_rho = n if density_molecule_count is None else float(density_molecule_count)
+    # Δ of [1]_ with S(0)/N per molecule and the density N_ρ/V: scale S(0) by N_ρ/N
+    delta = normalized_diffusivity(s0 * n_rho / n, n_rho, temperature_K, mass_u, volume_A3)
     if fluidicity_value is None:
         f = fluidicity(delta)
     else:
@@ -365,7 +304,7 @@ def two_phase_component(
     if f <= 0.0:
         gas_entropy_total = 0.0
     elif component == "translation":
-        per = volume_A3 / (f * n) if gas_volume == "gas-particles" else volume_A3 / n
+        per = volume_A3 / (f * n_rho) if gas_volume == "gas-particles" else volume_A3 / n_rho
         gas_entropy_total = f * n * hard_sphere_entropy(
             temperature_K, mass_u, per, y, hard_sphere_form
         )
@@ -435,10 +374,11 @@ def two_phase_group(
     principal_moments_u_A2: ArrayLike | None = None,
     symmetry_number: int = 1,
     hard_sphere_form: str = "published",
-    gas_volume: str = "gas-particles",
+    gas_volume: str = "all-particles",
     rotational_fluidicity: str = "from-rotation",
     translation_zero_frequency_cm: float | None = None,
     rotational_dof_per_molecule: int | None = None,
+    density_molecule_count: float | None = None,
 ) -> GroupResult:
     """2PT totals for N molecules of one kind from their component DoS.
 
@@ -462,6 +402,9 @@ def two_phase_group(
         Translational S̃(0) to use (e.g. from an MSD diffusion coefficient).
     rotational_dof_per_molecule : int, optional
         2 (linear) or 3; default: the rotational DoS integral per molecule, rounded.
+    density_molecule_count : float, optional
+        Molecules that set the density in Δ and the gas volume; default N (see
+        :func:`two_phase_component`).
 
     Returns
     -------
@@ -475,7 +418,7 @@ def two_phase_group(
     if "translation" not in parts:
         raise ConfigError("2PT needs a translational density of states")
     common = {"molecule_count": molecule_count, "temperature_K": temperature_K, "mass_u": mass_u,
-                  "volume_A3": volume_A3}
+                  "volume_A3": volume_A3, "density_molecule_count": density_molecule_count}
     comps: dict[str, ComponentResult] = {}
     comps["translation"] = two_phase_component(
         "translation", wavenumber_cm, parts["translation"], **common,

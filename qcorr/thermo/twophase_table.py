@@ -24,41 +24,39 @@ References
 
 from __future__ import annotations
 
-import math
 import os
 import warnings
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
 import xarray as xr
 
-from qcorr.errors import ConfigError, PhysicsError, QcorrWarning
+from qcorr.constants import avogadro_per_mol as AVOGADRO
+from qcorr.errors import QcorrWarning
 from qcorr.outputs.table import rows_to_frame
-from qcorr.spectra.spectrum_file import group_names
-from qcorr.thermo.hard_sphere_gas import (
-    GAS_VOLUME_CHOICES,
-    HARD_SPHERE_FORMS,
-    finite_size_diffusion_correction,
-    self_diffusion_from_zero_frequency,
-    zero_frequency_from_self_diffusion,
-)
 from qcorr.thermo.segment_statistics import segment_effective_count
-from qcorr.thermo.spectrum_groups import spectrum_source, spectrum_temperature, system_name
-from qcorr.thermo.twophase import ROTATIONAL_FLUIDICITY_CHOICES, GroupResult, two_phase_group
-from qcorr.thermo.twophase_inputs import (
-    VIBRATION_SPECTRA,
-    GroupInput,
-    check_molecular_variables,
-    diffusion_temperature,
-    group_input,
-    segments_rescaled,
+from qcorr.thermo.spectrum_groups import spectrum_source, system_name
+from qcorr.thermo.twophase_checks import result_checks
+from qcorr.thermo.twophase_evaluation import DIFFUSION_SOURCES, checked_options, evaluate
+from qcorr.thermo.twophase_rows import (
+    frozen_bond_addon_rows,
+    mixing_entropy_row,
+    model_checks,
+    temperature_scan_rows,
+    two_phase_rows,
 )
-from qcorr.thermo.twophase_rows import model_checks, two_phase_rows
 
-#: where the translational zero-frequency value comes from
-DIFFUSION_SOURCES = ("spectrum", "msd")
+__all__ = [
+    "CHOICES_OFFERED",
+    "COMPONENTS",
+    "DIFFUSION_SOURCES",
+    "TWO_PHASE_CAUTIONS",
+    "diffusion_summary",
+    "two_phase_properties",
+    "two_phase_split_spectra",
+]
 
 #: cautions written with every 2PT table
 TWO_PHASE_CAUTIONS = (
@@ -70,8 +68,10 @@ TWO_PHASE_CAUTIONS = (
     ),
     (
         "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) follow the "
-        "team's reconstruction of Lin et al. (2003, 2010); the printed equations were not re-read "
-        "for this version. The alternatives are options and are listed in this sidecar."
+        "team's reconstruction of Lin et al. (2003, 2010); only the papers' abstracts could be read, "
+        "so no equation was checked against print. The default gas volume V/N is empirical: the "
+        "variant closest to thermodynamic integration on Lennard-Jones liquids (docs/liquids.md). "
+        "The alternatives are options and are listed in this sidecar."
     ),
     (
         "The classical column uses classical harmonic weights on the solid-like part (compare with "
@@ -79,8 +79,9 @@ TWO_PHASE_CAUTIONS = (
         "quantum weights. Energy and free energy are absolute only with --md-energy."
     ),
     (
-        "Standard errors come from the per-segment spectra (fluidicity solved per segment); with "
-        "--diffusion-from msd the zero-frequency value is held fixed and its error is not included."
+        "Standard errors come from the per-segment spectra (fluidicity solved per segment, with each "
+        "segment's own VACF integral or S(0)); with the MSD the zero-frequency value is held fixed and "
+        "its error is not included."
     ),
 )
 
@@ -88,204 +89,14 @@ TWO_PHASE_CAUTIONS = (
 CHOICES_OFFERED = {
     "hard_sphere_entropy": {"published": "with ln z(y) (default)",
                             "constant-volume": "Carnahan-Starling at fixed N, V, T, no ln z"},
-    "gas_volume": {"gas-particles": "V/(fN) (default)", "all-particles": "V/N"},
+    "gas_volume": {"all-particles": "V/N (default; closest to thermodynamic integration on LJ liquids)",
+                   "gas-particles": "V/(fN), consistent with the gas packing fraction"},
     "rotational_fluidicity": {"from-rotation": "Delta from the rotational S(0) (default)",
                               "same-as-translation": "f_rot = f_trans"},
 }
 
 #: components of the split spectra, in order
 COMPONENTS = ("translation", "rotation", "vibration")
-
-
-@dataclass(frozen=True)
-class _Options:
-    """The 2PT options, checked (units in the names)."""
-
-    groups: list[str] | None
-    symmetry_number: int | None
-    group_symmetry_numbers: dict[str, int]
-    rotational_fluidicity: str
-    hard_sphere_entropy: str
-    gas_volume: str
-    diffusion_from: str
-    viscosity_Pa_s: float | None
-    vibration_spectrum: str
-    volume_A3: float | None
-    md_energies_kJ_per_mol: dict[str, float]
-
-
-@dataclass
-class _Evaluation:
-    """2PT of one group: inputs, results, the sidecar's diagnostics and the cautions."""
-
-    gin: GroupInput
-    result: GroupResult
-    segment_results: list[GroupResult]
-    info: dict
-    notes: list[str] = field(default_factory=list)
-    note: str = ""
-
-
-def _json_number(value: float) -> float | None:
-    """JSON has no NaN: undefined numbers become null."""
-    value = float(value)
-    return value if math.isfinite(value) else None
-
-
-def _checked_options(
-    groups, symmetry_number, group_symmetry_numbers, rotational_fluidicity, hard_sphere_entropy,
-    gas_volume, diffusion_from, viscosity_Pa_s, vibration_spectrum, volume_A3,
-    md_energies_kJ_per_mol,
-) -> _Options:
-    """Check the options that do not depend on the spectrum (messages name the options)."""
-    for keyword, value, allowed in (
-        ("rotational_fluidicity", rotational_fluidicity, ROTATIONAL_FLUIDICITY_CHOICES),
-        ("hard_sphere_entropy", hard_sphere_entropy, HARD_SPHERE_FORMS),
-        ("gas_volume", gas_volume, GAS_VOLUME_CHOICES),
-        ("diffusion_from", diffusion_from, DIFFUSION_SOURCES),
-        ("vibration_spectrum", vibration_spectrum, VIBRATION_SPECTRA),
-    ):
-        if value not in allowed:
-            raise ConfigError(f"{keyword}={value!r}: choose one of {', '.join(allowed)}")
-    per_group = {str(g): n for g, n in (group_symmetry_numbers or {}).items()}
-    for label, n in [("", symmetry_number), *((f"{g}=", n) for g, n in per_group.items())]:
-        if n is not None and (not isinstance(n, (int, np.integer)) or isinstance(n, bool) or n < 1):
-            raise ConfigError(f"--symmetry-number {label}{n}: the symmetry number must be an integer >= 1")
-    if viscosity_Pa_s is not None and not (math.isfinite(viscosity_Pa_s) and viscosity_Pa_s > 0):
-        raise ConfigError(f"--viscosity {viscosity_Pa_s}: give a positive shear viscosity in Pa s")
-    if volume_A3 is not None and not (math.isfinite(volume_A3) and volume_A3 > 0):
-        raise ConfigError(f"--volume {volume_A3}: give a positive volume in cubic angstrom")
-    energies = {str(g): float(v) for g, v in (md_energies_kJ_per_mol or {}).items()}
-    for g, v in energies.items():
-        if not math.isfinite(v):
-            raise ConfigError(f"--md-energy {g}={v}: expected GROUP=KJ_PER_MOL with a finite number")
-    return _Options(
-        groups=list(groups) if groups else None,
-        symmetry_number=None if symmetry_number is None else int(symmetry_number),
-        group_symmetry_numbers={g: int(n) for g, n in per_group.items()},
-        rotational_fluidicity=rotational_fluidicity, hard_sphere_entropy=hard_sphere_entropy,
-        gas_volume=gas_volume, diffusion_from=diffusion_from,
-        viscosity_Pa_s=None if viscosity_Pa_s is None else float(viscosity_Pa_s),
-        vibration_spectrum=vibration_spectrum,
-        volume_A3=None if volume_A3 is None else float(volume_A3),
-        md_energies_kJ_per_mol=energies,
-    )
-
-
-def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: _Options, *, temperature: float,
-                    volume: float, with_segments: bool) -> _Evaluation:
-    """2PT of one group (and of each of its segments when *with_segments*)."""
-    name, notes = gin.name, []
-    wavenumber = ds["wavenumber"].values
-    sigma = opts.group_symmetry_numbers.get(name, opts.symmetry_number)
-    if "rotation" in gin.parts and sigma is None:
-        notes.append(f"group '{name}': no --symmetry-number given, 1 assumed (water: 2, NH3: 3, CH4: 12)")
-        sigma = 1
-    sigma = sigma or 1
-    t_kin = diffusion_temperature(ds, g, temperature)
-    s0_spectrum = float(gin.parts["translation"][0])
-    d_spectrum = self_diffusion_from_zero_frequency(s0_spectrum, gin.molecule_count, t_kin, gin.mass_u)
-    if opts.diffusion_from == "msd" and not math.isfinite(gin.msd_diffusion_m2_per_s):
-        raise PhysicsError(f"group '{name}': --diffusion-from msd needs the MSD diffusion coefficient, "
-                           "which the spectrum file lacks; remake it with 'qcorr spectrum --molecular'")
-    d_correction = 0.0
-    if opts.viscosity_Pa_s is not None:
-        d_correction = finite_size_diffusion_correction(temperature, opts.viscosity_Pa_s,
-                                                        volume ** (1.0 / 3.0))
-
-    def s0_of(d_m2_per_s: float) -> float:
-        return zero_frequency_from_self_diffusion(d_m2_per_s, gin.molecule_count, t_kin, gin.mass_u)
-
-    n_seg = ds.sizes["segment"]
-    gin = segments_rescaled(gin, wavenumber)
-    if opts.diffusion_from == "msd":
-        s0 = s0_of(gin.msd_diffusion_m2_per_s + d_correction)
-        s0_segments = [s0] * n_seg
-        d_used = gin.msd_diffusion_m2_per_s + d_correction
-    else:
-        s0 = s0_spectrum + s0_of(d_correction)
-        s0_segments = [float(v[0]) + s0_of(d_correction) for v in gin.part_segments["translation"]]
-        d_used = d_spectrum + d_correction
-    settings = {"molecule_count": gin.molecule_count, "temperature_K": temperature,
-                "mass_u": gin.mass_u, "volume_A3": volume,
-                "principal_moments_u_A2": gin.principal_moments, "symmetry_number": sigma,
-                "hard_sphere_form": opts.hard_sphere_entropy, "gas_volume": opts.gas_volume,
-                "rotational_fluidicity": opts.rotational_fluidicity,
-                "rotational_dof_per_molecule": gin.rotational_dof}
-    result = two_phase_group(wavenumber, gin.parts, translation_zero_frequency_cm=s0, **settings)
-    segment_results = [
-        two_phase_group(wavenumber, {k: v[i] for k, v in gin.part_segments.items()},
-                        translation_zero_frequency_cm=s0_segments[i], **settings)
-        for i in range(n_seg)
-    ] if with_segments and n_seg >= 2 else []
-    info = {
-        "source": gin.source,
-        "molecule_count": gin.molecule_count,
-        "molecule_mass_u": gin.mass_u,
-        "volume_A3": volume,
-        "symmetry_number": sigma,
-        "self_diffusion_from_spectrum_m2_per_s": _json_number(d_spectrum),
-        "self_diffusion_from_msd_m2_per_s": _json_number(gin.msd_diffusion_m2_per_s),
-        "finite_size_correction_m2_per_s": _json_number(d_correction),
-        "self_diffusion_used_m2_per_s": _json_number(d_used),
-        "temperature_for_diffusion_K": t_kin,
-        "components": {
-            comp: {
-                "degrees_of_freedom_per_molecule": _json_number(c.dof_per_molecule),
-                "normalized_diffusivity": _json_number(c.normalized_diffusivity),
-                "fluidicity": _json_number(c.fluidicity),
-                "packing_fraction": _json_number(c.packing_fraction),
-                "gas_entropy_per_molecule_k": _json_number(c.gas_entropy),
-                "solid_entropy_per_molecule_k": _json_number(c.solid_entropy),
-                "solid_dos_minimum_cm_per_molecule": _json_number(c.solid_dos_minimum),
-            }
-            for comp, c in result.components.items()
-        },
-    }
-    note = (f"2PT per mole of molecules; hard-sphere entropy {opts.hard_sphere_entropy}, gas volume "
-            f"{opts.gas_volume}, rotational fluidicity {opts.rotational_fluidicity}, zero-frequency "
-            f"value from {opts.diffusion_from}, vibration spectrum {opts.vibration_spectrum}"
-            + (f" + Yeh-Hummer correction (viscosity {opts.viscosity_Pa_s:g} Pa s)"
-               if opts.viscosity_Pa_s else ""))
-    return _Evaluation(gin, result, segment_results, info, notes, note)
-
-
-def _evaluate(ds: xr.Dataset, source: str, opts: _Options, *, with_segments: bool
-              ) -> tuple[dict[str, _Evaluation], dict[str, str], float, float]:
-    """2PT of every chosen group: (evaluations, skipped groups with the reason, T in K, V in Å³)."""
-    check_molecular_variables(ds, source)
-    names = group_names(ds)
-    for option, given in (("--symmetry-number", opts.group_symmetry_numbers),
-                          ("--md-energy", opts.md_energies_kJ_per_mol)):
-        for gname in given:
-            if gname not in names:
-                raise ConfigError(f"{option}: no group '{gname}' in spectrum file '{source}'; "
-                                  f"groups: {', '.join(names)}")
-    for gname in opts.groups or []:
-        if gname not in names:
-            raise ConfigError(f"--groups: no group '{gname}' in spectrum file '{source}'; "
-                              f"groups: {', '.join(names)}")
-    temperature = spectrum_temperature(ds, source)
-    volume = opts.volume_A3 if opts.volume_A3 is not None else float(ds.attrs["mean_box_volume_A3"])
-    if not volume > 0:
-        raise PhysicsError(f"spectrum file '{source}' has no box volume (mean_box_volume_A3 = "
-                           f"{volume}); 2PT needs the volume: pass --volume in cubic angstrom")
-    evaluations: dict[str, _Evaluation] = {}
-    skipped: dict[str, str] = {}
-    for name in opts.groups or names:
-        g = names.index(name)
-        gin = group_input(ds, g, name, source, opts.vibration_spectrum)
-        if isinstance(gin, str):
-            if opts.groups:
-                raise PhysicsError(f"spectrum file '{source}', group '{name}' {gin}")
-            skipped[name] = gin
-            continue
-        evaluations[name] = _evaluate_group(ds, g, gin, opts, temperature=temperature, volume=volume,
-                                            with_segments=with_segments)
-    if not evaluations:
-        raise PhysicsError(f"spectrum file '{source}': no group can be evaluated by 2PT ("
-                           + "; ".join(f"{k}: {v}" for k, v in skipped.items()) + ")")
-    return evaluations, skipped, temperature, volume
 
 
 def two_phase_properties(
@@ -297,12 +108,16 @@ def two_phase_properties(
     group_symmetry_numbers: Mapping[str, int] | None = None,
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
-    gas_volume: str = "gas-particles",
-    diffusion_from: str = "spectrum",
+    gas_volume: str = "all-particles",
+    diffusion_from: str = "auto",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
     volume_A3: float | None = None,
     md_energies_kJ_per_mol: Mapping[str, float] | None = None,
+    mixtures: Mapping[str, Sequence[str]] | None = None,
+    temperatures_K: Sequence[float] | None = None,
+    frozen_bond_wavenumbers_cm: Mapping[str, Sequence[float]] | None = None,
+    pressure_bar: float | None = None,
     source: str | os.PathLike[str] | None = None,
 ) -> pd.DataFrame:
     """Absolute entropy, heat capacity, zero-point energy, energy and free energy of liquids by 2PT.
@@ -335,11 +150,15 @@ def two_phase_properties(
     hard_sphere_entropy : {"published", "constant-volume"}
         Hard-sphere entropy with ln z(y) (published form) or the Carnahan–Starling
         entropy at fixed N, V, T.
-    gas_volume : {"gas-particles", "all-particles"}
-        Volume per gas particle: V/(fN) or V/N.
-    diffusion_from : {"spectrum", "msd"}
-        Translational zero-frequency value from the spectrum S(0) or from the
-        mean-square-displacement diffusion coefficient (both are reported).
+    gas_volume : {"all-particles", "gas-particles"}
+        Volume per gas particle: V/N (default, the variant closest to thermodynamic
+        integration on the Lennard-Jones references of ``docs/liquids.md``) or V/(fN).
+    diffusion_from : {"auto", "vacf-integral", "msd", "spectrum"}
+        Translational zero-frequency value: the Green–Kubo integral of the VACF over one
+        segment (one-atom molecules), the Einstein MSD slope, or S(0) of the tapered
+        spectrum (biased high where the spectrum rises steeply; ``methods.md`` §8.3).
+        ``auto`` takes the VACF integral when the file has the molecules' VACF, else the
+        MSD, else S(0) with a caution.  All are reported in ``attrs["groups"]``.
     viscosity_Pa_s : float, optional
         Shear viscosity in Pa s: adds the Yeh–Hummer correction 2.837297 kT/(6 π η L)
         (cubic box, L = volume^(1/3)) to the self-diffusion coefficient [3]_.
@@ -349,8 +168,26 @@ def two_phase_properties(
     volume_A3 : float, optional
         System volume in Å³; default the spectrum's ``mean_box_volume_A3``.
     md_energies_kJ_per_mol : mapping of str to float, optional
-        Mean total (kinetic + potential) MD energy per mole of molecules of a group,
-        kJ/mol; makes its energy and free energy absolute.
+        Mean total (kinetic + potential) MD energy per mole of molecules of a group (or of
+        a mixture, per mole of all its molecules), kJ/mol; makes its energy and free energy
+        absolute.
+    mixtures : mapping of str to sequence of str, optional
+        Mixtures: name → its component groups (each of one kind of molecule, together the
+        whole liquid).  Each component is evaluated at the total density and the mixture's
+        rows (``group`` = its name, per mole of all its molecules) add the ideal mixing
+        entropy (:mod:`qcorr.thermo.twophase_mixture`; our rule, validated against
+        thermodynamic integration in ``docs/liquids.md``).  A group of that name, if any,
+        must hold exactly the components' atoms and is replaced by the mixture.
+    temperatures_K : sequence of float, optional
+        Temperature scan, K: at each other temperature, rows with only the quantum
+        corrections of the solid-like parts (the spectrum and split of the MD temperature).
+    frozen_bond_wavenumbers_cm : mapping of str to sequence of float, optional
+        Wavenumbers (cm⁻¹) of bonds constrained in the MD, per molecule of a group: rows of
+        method ``frozen_bond_addon`` (one quantum harmonic mode each) to add to its rows.
+    pressure_bar : float, optional
+        Mean MD pressure, bar: with an MD energy, adds enthalpy H = E + pV and Gibbs energy
+        G = A + pV (kJ/mol) for a group that holds every atom of ``total``, and for a
+        mixture (V: the volume, per molecule).
     source : str or path-like, optional
         The spectrum's file name, for messages, the default *system* and the provenance;
         default the file xarray read *ds* from, if any.
@@ -381,19 +218,57 @@ def two_phase_properties(
     .. [2] S.-T. Lin, P. K. Maiti, W. A. Goddard III, J. Phys. Chem. B 114, 8191 (2010).
     .. [3] I.-C. Yeh, G. Hummer, J. Phys. Chem. B 108, 15873 (2004).
     """
-    opts = _checked_options(groups, symmetry_number, group_symmetry_numbers, rotational_fluidicity,
-                            hard_sphere_entropy, gas_volume, diffusion_from, viscosity_Pa_s,
-                            vibration_spectrum, volume_A3, md_energies_kJ_per_mol)
+    opts = checked_options(
+        groups=groups, symmetry_number=symmetry_number, group_symmetry_numbers=group_symmetry_numbers,
+        rotational_fluidicity=rotational_fluidicity, hard_sphere_entropy=hard_sphere_entropy,
+        gas_volume=gas_volume, diffusion_from=diffusion_from, viscosity_Pa_s=viscosity_Pa_s,
+        vibration_spectrum=vibration_spectrum, volume_A3=volume_A3,
+        md_energies_kJ_per_mol=md_energies_kJ_per_mol, mixtures=mixtures, temperatures_K=temperatures_K,
+        frozen_bond_wavenumbers_cm=frozen_bond_wavenumbers_cm, pressure_bar=pressure_bar)
     name = spectrum_source(ds, source)
     system = system_name(system, name)
-    evaluations, skipped, temperature, volume = _evaluate(ds, name, opts, with_segments=True)
+    evaluations, mixtures_done, skipped, temperature, volume = evaluate(ds, name, opts, with_segments=True)
     k_eff = segment_effective_count(ds)
     wavenumber = ds["wavenumber"].values
+    names = [str(g) for g in ds["group"].values]
+    scan = [t for t in opts.temperatures_K if not np.isclose(t, temperature, rtol=1e-12)]
     rows, notes = [], []
+    atoms = {g: int(ds["atom_count"].values[i]) for i, g in enumerate(names)}
+
+    def pv(molecules: float, whole: bool) -> float | None:
+        """pV per mole of molecules (kJ/mol), only for a group or mixture that is the whole system."""
+        if opts.pressure_bar is None or not whole:
+            return None
+        return opts.pressure_bar * 1e5 * volume * 1e-30 / molecules * AVOGADRO * 1e-3
+
     for gname, ev in evaluations.items():
-        notes += ev.notes + model_checks(ev.gin, ev.result, ev.segment_results, k_eff, wavenumber)
+        t_group = float(ds["kinetic_temperature"].values[names.index(gname)])
+        checks, ev.info["checks"] = result_checks(ev.gin, ev.result, ev.segment_results, k_eff, wavenumber,
+                                                  t_group if t_group > 0 else temperature)
+        notes += ev.notes + model_checks(ev.gin, ev.result, ev.segment_results, k_eff, wavenumber) + checks
+        whole = ev.mixture is None and atoms[gname] == atoms.get("total", -1)
         rows += two_phase_rows(system, ev.gin, ev.result, ev.segment_results, k_eff, temperature,
-                               opts.md_energies_kJ_per_mol.get(gname), ev.note)
+                               opts.md_energies_kJ_per_mol.get(gname), ev.note,
+                               pv(ev.gin.molecule_count, whole))
+        for t in scan:
+            rows += temperature_scan_rows(system, gname, ev.gin.molecule_count, ev.result, ev.segment_results,
+                                          k_eff, wavenumber, t, temperature)
+        if gname in opts.frozen_bond_wavenumbers_cm:
+            atoms = float(ds["atom_count"].values[names.index(gname)])
+            for t in [temperature, *scan]:
+                rows += frozen_bond_addon_rows(system, gname, ev.gin.molecule_count, atoms,
+                                               opts.frozen_bond_wavenumbers_cm[gname], t)
+    for mname, mix in mixtures_done.items():
+        rows += two_phase_rows(system, SimpleNamespace(name=mname), mix.result, mix.segment_results, k_eff,
+                               temperature, opts.md_energies_kJ_per_mol.get(mname),
+                               f"2PT mixture of {', '.join(mix.members)} per mole of all their molecules: "
+                               "components at the total density plus the ideal mixing entropy",
+                               pv(sum(mix.molecule_counts), True))
+        rows.append(mixing_entropy_row(system, mname, mix.info["ideal_mixing_entropy_per_molecule_k"],
+                                       temperature, mix.members))
+    if scan:
+        notes.append(f"Temperature scan: the spectrum was measured at {temperature:g} K; the rows at other "
+                     "temperatures hold only the quantum corrections of its solid-like parts (harmonic assumption).")
     notes += [f"group '{gname}' skipped: {why}" for gname, why in skipped.items()]
     frame = rows_to_frame(rows)
     frame.attrs = {
@@ -412,11 +287,16 @@ def two_phase_properties(
             "vibration_spectrum": opts.vibration_spectrum,
             "volume_A3": volume,
             "md_energy_kJ_per_mol": opts.md_energies_kJ_per_mol,
+            "mixtures": opts.mixtures,
+            "temperatures_K": opts.temperatures_K,
+            "frozen_bond_wavenumbers_cm": opts.frozen_bond_wavenumbers_cm,
+            "pressure_bar": opts.pressure_bar,
         },
         "choices_offered": CHOICES_OFFERED,
         "standard_errors": "per-segment spectra; s / sqrt(K_eff), Welch (1967) effective segment count",
         "effective_segment_count": k_eff,
         "groups": {gname: ev.info for gname, ev in evaluations.items()},
+        "mixtures": {mname: mix.info for mname, mix in mixtures_done.items()},
         "skipped_groups": skipped,
         "cautions": list(TWO_PHASE_CAUTIONS) + notes,
     }
@@ -433,11 +313,12 @@ def two_phase_split_spectra(
     group_symmetry_numbers: Mapping[str, int] | None = None,
     rotational_fluidicity: str = "from-rotation",
     hard_sphere_entropy: str = "published",
-    gas_volume: str = "gas-particles",
-    diffusion_from: str = "spectrum",
+    gas_volume: str = "all-particles",
+    diffusion_from: str = "auto",
     viscosity_Pa_s: float | None = None,
     vibration_spectrum: str = "residual",
     volume_A3: float | None = None,
+    mixtures: Mapping[str, Sequence[str]] | None = None,
     source: str | os.PathLike[str] | None = None,
 ) -> xr.Dataset:
     """The gas-like and solid-like spectra of every component of every 2PT group.
@@ -455,10 +336,12 @@ def two_phase_split_spectra(
         (``translation``, ``rotation``, ``vibration``) and ``wavenumber`` (cm^-1);
         attribute ``qcorr_file_kind = "two_phase_split"``.
     """
-    opts = _checked_options(groups, symmetry_number, group_symmetry_numbers, rotational_fluidicity,
-                            hard_sphere_entropy, gas_volume, diffusion_from, viscosity_Pa_s,
-                            vibration_spectrum, volume_A3, None)
-    evaluations, _, _, _ = _evaluate(ds, spectrum_source(ds, source), opts, with_segments=False)
+    opts = checked_options(
+        groups=groups, symmetry_number=symmetry_number, group_symmetry_numbers=group_symmetry_numbers,
+        rotational_fluidicity=rotational_fluidicity, hard_sphere_entropy=hard_sphere_entropy,
+        gas_volume=gas_volume, diffusion_from=diffusion_from, viscosity_Pa_s=viscosity_Pa_s,
+        vibration_spectrum=vibration_spectrum, volume_A3=volume_A3, mixtures=mixtures)
+    evaluations = evaluate(ds, spectrum_source(ds, source), opts, with_segments=False)[0]
     wavenumber = ds["wavenumber"].values
     names = list(evaluations)
     gas = np.full((len(names), len(COMPONENTS), wavenumber.size), np.nan)
@@ -483,7 +366,8 @@ def two_phase_split_spectra(
 
 
 def diffusion_summary(group: str, info: Mapping) -> str:
-    """One line on a group's diffusion: D from S(0) and from the MSD (m²/s), and the fluidicities.
+    """One line on a group's diffusion: D from the VACF integral, the MSD and S(0) (m²/s), which
+    one the fluidicity used, and the fluidicities.
 
     Parameters
     ----------
@@ -492,8 +376,10 @@ def diffusion_summary(group: str, info: Mapping) -> str:
     info : mapping
         The group's entry of ``attrs["groups"]`` of a :func:`two_phase_properties` table.
     """
-    d = [float("nan") if v is None else v for v in (info["self_diffusion_from_spectrum_m2_per_s"],
-                                                    info["self_diffusion_from_msd_m2_per_s"])]
-    return (f"group '{group}': D from S(0) = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s; "
+    d = [float("nan") if info.get(k) is None else info[k]
+         for k in ("self_diffusion_from_vacf_integral_m2_per_s", "self_diffusion_from_msd_m2_per_s",
+                   "self_diffusion_from_spectrum_m2_per_s")]
+    return (f"group '{group}': D from the VACF integral = {d[0]:.4g} m2/s, from MSD = {d[1]:.4g} m2/s, "
+            f"from S(0) = {d[2]:.4g} m2/s (used: {info.get('diffusion_source_used', '?')}); "
             + ", ".join(f"{comp} f = {c['fluidicity']:.4g}"
                         for comp, c in info["components"].items() if comp != "vibration"))

@@ -154,7 +154,7 @@ def get_properties_options(wildcards):
 
 def get_liquid_options(wildcards):
     row = systems.loc[wildcards.system]
-    return [
+    options = [
         "--system",
         wildcards.system,
         "--symmetry-number",
@@ -165,7 +165,17 @@ def get_liquid_options(wildcards):
         str(row["rotational_fluidicity"]),
         "--diffusion-from",
         str(row["diffusion_from"]),
+        "--gas-volume",
+        str(row["gas_volume"]),
     ]
+    temperatures = [float(t) for t in split_items(row["temperatures_K"])]
+    if temperatures:
+        options += ["--temperatures"] + [f"{t:g}" for t in dict.fromkeys(temperatures)]
+    for group, numbers in parse_pairs(
+        row["frozen_bond_wavenumbers"], "frozen_bond_wavenumbers", row["_where"]
+    ):
+        options += ["--frozen-bond-wavenumbers", f"{group}={numbers.replace(' ', '')}"]
+    return options
 
 
 def get_tables(wildcards):
