@@ -48,7 +48,6 @@ import argparse
 import hashlib
 import json
 import math
-import os
 import sys
 import time
 from pathlib import Path
@@ -59,6 +58,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "scripts"))
 
 import make_validation_data as engines  # noqa: E402
+
 from qcorr.safe_write import atomic_path, write_text_atomic  # noqa: E402
 
 TEMPERATURES_K = (278.15, 288.15, 298.15, 308.15, 318.15)

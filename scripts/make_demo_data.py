@@ -54,6 +54,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import make_validation_data as engines  # noqa: E402
+
 from qcorr.errors import ConfigError, QcorrError  # noqa: E402
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "resources" / "demo"

@@ -58,8 +58,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 # the validation set's script (this folder): recorder, engines' helpers, cache location
 from make_validation_data import (  # noqa: E402
-    TRAJECTORY_NAME,
     TOPOLOGY_NAME,
+    TRAJECTORY_NAME,
     TrajectoryRecorder,
     _mdanalysis_mass,
     _nose_hoover_simulation,

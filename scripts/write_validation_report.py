@@ -55,6 +55,7 @@ sys.path.insert(1, str(Path(__file__).resolve().parent.parent / "tests"))
 
 import make_validation_data as engines  # noqa: E402
 import reference_data as real  # noqa: E402
+
 from qcorr import __version__ as qcorr_version  # noqa: E402
 from qcorr.constants import (  # noqa: E402
     avogadro_per_mol,

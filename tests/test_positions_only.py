@@ -36,7 +36,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from qcorr.spectra.spectrum_file import raw_segments_of, read_spectrum
+from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo.harmonic import harmonic_properties
 
 SCRIPTS = Path(__file__).resolve().parent.parent / "scripts"

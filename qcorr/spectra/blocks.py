@@ -134,7 +134,12 @@ def spectrum_parts_of(ds: xr.Dataset, molecular=None) -> SpectrumParts:
 def _kinetic_series_of(ds: xr.Dataset) -> dict[str, np.ndarray]:
     """The per-frame kinetic-energy series of a spectrum dataset as SpectrumParts fields (empty if
     the file has none: made before they were stored)."""
-    from qcorr.spectra.kinetic_series import FRAME_TIME, KINETIC_ENERGY, KJ_PER_MOL_IN_U_A2_PER_PS2, TOTAL_MOMENTUM
+    from qcorr.spectra.kinetic_series import (
+        FRAME_TIME,
+        KINETIC_ENERGY,
+        KJ_PER_MOL_IN_U_A2_PER_PS2,
+        TOTAL_MOMENTUM,
+    )
 
     if KINETIC_ENERGY not in ds:
         return {}

@@ -39,34 +39,6 @@ def kinetic_variables(time_ps, kinetic_u_A2_per_ps2, momentum_u_A_per_ps) -> dic
         Σ m v per frame before the removal, shape (frames, 3), g/mol Å/ps.
     """
     time = np.asarray(time_ps, dtype=float)
-    coords = {FRAME_TIME: ((FRAME,), time, {"units": "ps", "long_name": "time of the frame"})}
-    return {
-        KINETIC_ENERGY: xr.DataArray(
-            np.asarray(kinetic_u_A2_per_ps2, dtype=float) / KJ_PER_MOL_IN_U_A2_PER_PS2, dims=(FRAME,),
-            coords=coords, attrs={"units": "kJ mol-1", "long_name": "kinetic energy of the whole system "
-                                  "(centre-of-mass motion removed), per mole of systems"}),
-        TOTAL_MOMENTUM: xr.DataArray(
-            np.asarray(momentum_u_A_per_ps, dtype=float).reshape(-1, 3), dims=(FRAME, "spatial"),
-            coords=coords, attrs={"units": "g mol-1 angstrom ps-1",
-                                  "long_name": "total momentum before the centre-of-mass removal"}),
-    }
-
-
-
-
-def kinetic_variables(time_ps, kinetic_u_A2_per_ps2, momentum_u_A_per_ps) -> dict[str, xr.DataArray]:
-    """The spectrum-file variables of the per-frame kinetic energy and total momentum.
-
-    Parameters
-    ----------
-    time_ps : array_like
-        Frame times, ps.
-    kinetic_u_A2_per_ps2 : array_like
-        Σ ½ m v² per frame after the centre-of-mass removal, g/mol Å²/ps².
-    momentum_u_A_per_ps : array_like
-        Σ m v per frame before the removal, shape (frames, 3), g/mol Å/ps.
-    """
-    time = np.asarray(time_ps, dtype=float)
     coords = {FRAME_TIME: ((FRAME,), time, {"units": "ps", "long_name": "time of the frame from the first "
                                             "frame of the window"})}
     return {
