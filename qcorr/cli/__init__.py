@@ -244,8 +244,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return err.exit_code
     args.command_line = shlex.join(["qcorr", *argv])
     warnings.showwarning = _show_warning
+    from qcorr.unused_modules import leave_out
+
     try:
-        return int(args._run(args) or 0)
+        with leave_out():  # xarray would import dask, distributed and pint for nothing (issue 16)
+            return int(args._run(args) or 0)
     except QcorrError as err:
         print(f"qcorr: error: {err}", file=sys.stderr)
         return err.exit_code

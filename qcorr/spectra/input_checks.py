@@ -42,7 +42,6 @@ import math
 
 import numpy as np
 import xarray as xr
-from scipy import stats
 
 from qcorr.errors import TrajectoryError
 from qcorr.spectra.diagnostics import (
@@ -50,6 +49,7 @@ from qcorr.spectra.diagnostics import (
     Diagnostic,
     frame_weights,
     kinetic_temperature_statistics,
+    student_t_quantile,
 )
 
 __all__ = [
@@ -99,7 +99,7 @@ def _segment_mean(values: np.ndarray, ds: xr.Dataset) -> tuple[float, float, flo
     if not k_eff > 1:
         return mean, math.nan, math.nan
     se = float(np.std(values, ddof=1)) * math.sqrt((k - 1) / (k * (k_eff - 1.0)))
-    return mean, se, float(stats.t.isf(FALSE_WARNING_PROBABILITY / 2.0, k_eff - 1.0))
+    return mean, se, student_t_quantile(FALSE_WARNING_PROBABILITY / 2.0, k_eff - 1.0)
 
 
 def _group_noise(ds: xr.Dataset, g: int, band: np.ndarray) -> dict[str, float] | None:
