@@ -85,6 +85,13 @@ def properties(p: Paths, *extra, spectrum="dimers.nc", output="table.csv") -> li
     return ["properties", p.i(spectrum), "--quiet", *extra, "--output", out]
 
 
+def corrected(p: Paths, *extra, spectrum="dimers.nc", output="table.csv") -> list:
+    """qcorr corrected of an NVT run with a classical heat capacity typed in (no energy file)."""
+    out = output if isinstance(output, Path) else p.w(output)
+    return ["corrected", p.i(spectrum), "--quiet", "--ensemble", "nvt", "--classical-value", "heat_capacity=50",
+            *extra, "--output", out]
+
+
 def liquid(p: Paths, *extra, spectrum="molecular.nc", output="table.csv") -> list:
     out = output if isinstance(output, Path) else p.w(output)
     return ["liquid", p.i(spectrum), "--quiet", *extra, "--output", out]
@@ -447,6 +454,18 @@ COMMAND_CASES += [
     Case("properties-abbreviated-option", "--temp for --temperatures", lambda p: properties(p, "--temp", "300"),
          ("--temp", "not abbreviated", "--temperatures")),
     *output_cases("properties", lambda p, out: properties(p, output=out), "table.csv"),
+]
+
+# ----------------------------------------------------------------------------- qcorr corrected
+COMMAND_CASES += [
+    Case("corrected-energy-file-missing", "--energy-file that does not exist",
+         lambda p: corrected(p, "--energy-file", p.i("none.csv"), "--energy-format", "openmm-csv"),
+         ("none.csv",)),
+    Case("corrected-classical-value-unknown", "--classical-value for a property qcorr has no baseline of",
+         lambda p: corrected(p, "--classical-value", "viscosity=1"), ("--classical-value", "viscosity")),
+    Case("corrected-reference-without-source", "--reference without its source",
+         lambda p: corrected(p, "--reference", "heat_capacity=75.3"), ("--reference", "SOURCE")),
+    *output_cases("corrected", lambda p, out: corrected(p, output=out), "table.csv"),
 ]
 
 # ----------------------------------------------------------------------------- qcorr liquid
