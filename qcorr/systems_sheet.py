@@ -472,8 +472,8 @@ def read_systems_sheet(
             frame[name] = pd.NA
         if spec.get("type") == "integer":
             frame[name] = frame[name].astype("Int64")
-        elif spec.get("type") == "number":
-            frame[name] = frame[name].astype(float)
+        elif spec.get("type") == "number":  # NA (an empty optional cell) becomes NaN
+            frame[name] = pd.to_numeric(frame[name]).astype(float)
     for index, where in enumerate(places):
         row = frame.iloc[index]
         _check_lists(row, where)

@@ -15,6 +15,7 @@ SECTIONS = {
     "combine": "`qcorr combine`",
     "properties": "`qcorr properties`",
     "liquid": "`qcorr liquid`",
+    "corrected": "`qcorr corrected`",
     "merge": "`qcorr merge`",
     "plot": "`qcorr plot`",
     "sheet": "The workflow's systems sheet (read when Snakemake loads the workflow)",

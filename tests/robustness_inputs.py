@@ -101,11 +101,6 @@ def make_trajectories(d: Path) -> None:
     nan_v[700, 3, 1] = np.nan
     synthetic.write_trr(dataclasses.replace(scn, velocities=nan_v), d / "nan_velocity.trr")
     synthetic.write_trr(scn, d / "positions_only.trr", with_velocities=False)
-    # a restarted run: the second file repeats the last 100 frames of the first
-    first, second = (dataclasses.replace(scn, positions=scn.positions[s], velocities=scn.velocities[s],
-                                         times_ps=scn.times_ps[s]) for s in (slice(0, 600), slice(500, None)))
-    synthetic.write_trr(first, d / "restart_part1.trr")
-    synthetic.write_trr(second, d / "restart_part2.trr")
     # another run of the same system: same file name and size, other contents
     (d / "other_run").mkdir()
     synthetic.write_trr(scenario(seed=99), d / "other_run" / "dimers.trr")

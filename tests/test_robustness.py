@@ -268,8 +268,8 @@ def _param(case: Case):
 
 def test_case_names_are_unique_and_commands_known():
     assert len(BY_NAME) == len(CASES)
-    assert {case.command for case in CASES} <= {"qcorr", "spectrum", "combine", "properties", "liquid", "merge",
-                                                "plot", "sheet"}
+    assert {case.command for case in CASES} <= {"qcorr", "spectrum", "combine", "properties", "liquid", "corrected",
+                                                "merge", "plot", "sheet"}
 
 
 @pytest.mark.parametrize("name", [_param(case) for case in CASES])

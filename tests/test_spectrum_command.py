@@ -306,11 +306,12 @@ def test_command_summaries_equal_the_modules():
     # the help lines read from the sources without importing them equal the modules' own
     import importlib
 
-    from qcorr.cli import COMMAND_MODULES, _CommandSummary, build_parser
+    from qcorr.cli import COMMAND_MODULES, build_parser
+    from qcorr.cli.parsing import CommandSummary
 
     for name in COMMAND_MODULES:
         module = importlib.import_module(f"qcorr.cli.{name}_command")
-        summary = _CommandSummary(name)
+        summary = CommandSummary(name)
         assert (summary.NAME, summary.HELP) == (module.NAME, module.HELP)
         assert summary.DESCRIPTION == getattr(module, "DESCRIPTION", module.HELP)
     # a parser built for one command parses that command's options like the full parser

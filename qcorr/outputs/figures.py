@@ -27,7 +27,7 @@ References
 ----------
 .. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, "Thermodynamics
    and quantum corrections from molecular dynamics for liquid water",
-   J. Chem. Phys. 79, 2375 (1983). https://doi.org/10.1063/1.446044
+   J. Chem. Phys. 79, 2375 (1983).
 """
 
 from __future__ import annotations

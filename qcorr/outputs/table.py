@@ -416,7 +416,9 @@ def read_table(path: str | os.PathLike[str]) -> pd.DataFrame:
     if legacy:
         frame = with_reference_columns(frame)
     for col in TEXT_COLUMNS:
-        frame[col] = frame[col].fillna("").astype(str)
+        # an all-empty text column is read as float NaN: as object first, so that filling
+        # it with '' does not change a float column's dtype (pandas warns on that)
+        frame[col] = frame[col].astype(object).fillna("").astype(str)
     frame.attrs = provenance
     return frame
 

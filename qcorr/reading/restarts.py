@@ -15,6 +15,7 @@ the first frame of the later file against the last of the earlier only.
 from __future__ import annotations
 
 import itertools
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -119,6 +120,14 @@ def _overlap_with_stamps(a, b, first_b: int, factor: float) -> list[RepeatedFram
     return found
 
 
+def _same_file(a, b) -> bool:
+    """True if two trajectory file names point at the same file."""
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return os.path.abspath(a) == os.path.abspath(b)
+
+
 def _overlap_without_stamps(a, b, first_b: int) -> list[RepeatedFrame]:
     if _difference(_state(a, a.n_frames - 1), _state(b, 0)):
         return []
@@ -153,9 +162,20 @@ def repeated_boundary_frames(opened) -> list[RepeatedFrame]:
     first = 0
     for a, b in itertools.pairwise(readers):
         first += a.n_frames
+        if _same_file(a.filename, b.filename):
+            raise TrajectoryError(
+                f"'{b.filename}' is given twice in a row as a trajectory file; give each file of the "
+                "run once, in time order"
+            )
         if opened.stamped:
-            found += _overlap_with_stamps(a, b, first, opened.lammps_time_factor)
+            repeats = _overlap_with_stamps(a, b, first, opened.lammps_time_factor)
         else:
-            found += _overlap_without_stamps(a, b, first)
+            repeats = _overlap_without_stamps(a, b, first)
+        if b.n_frames >= 2 and len(repeats) == b.n_frames:
+            raise TrajectoryError(
+                f"every frame of '{b.filename}' repeats a frame of '{a.filename}': the second file "
+                "adds nothing (the same run given twice?); leave it out"
+            )
+        found += repeats
     trajectory[0]
     return found

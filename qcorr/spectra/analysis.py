@@ -539,15 +539,17 @@ class VibrationalSpectrum(AnalysisBase):
             reader_options=self._reader_options, mass_overrides_u=self._masses_by_type,
             excluded_atoms=self._channels.note, **self._checks.attributes(),
         )
-        self._checks.before_assembly(self.results.spectrum_parts)
         table = group_table(self._groups)
         parts = self.results.spectrum_parts
+        total = list(table["group"]).index("total")
+        # 2/kT must be representable before anything is computed from the spectrum; the
+        # kinetic temperature itself is checked per group after assembly (with an override)
+        check_stated_temperature(parts.raw_segments[total], parts.wavenumber,
+                                 float(table["degrees_of_freedom"][total]), self._temperature,
+                                 factor_check=False)
+        self._checks.before_assembly(parts)
         ds = spectrum_from_parts(parts, table, attrs)
         self._checks.after_assembly(ds)
-        if not self._checks.allow_temperature_mismatch:
-            total = list(table["group"]).index("total")
-            check_stated_temperature(parts.raw_segments[total], parts.wavenumber,
-                                     float(table["degrees_of_freedom"][total]), self._temperature)
         checks = diagnose(ds)
         del self.results["spectrum_parts"]
         self.results.spectrum = ds

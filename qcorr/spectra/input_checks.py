@@ -213,7 +213,8 @@ def refuse_temperature_mismatch(ds: xr.Dataset, where: str, allowed: bool = Fals
         if gross and s.exceeded:
             raise TrajectoryError(
                 f"the kinetic temperature of group {s.group!r} of {where} is {s.ratio * stated:.4g} K, "
-                f"{s.ratio:.3g} times the stated {stated:g} K (refused beyond a factor of {factor:g}); "
+                f"{s.ratio:.3g} times the stated --temperature {stated:g} (in K; refused beyond a factor of "
+                f"{factor:g}); "
                 "likely causes: the frame spacing (--frame-spacing, a reader dt, --step), the velocity "
                 "or length units (--lammps-units), the masses (--mass), the constraints "
                 "(--constraints) or --temperature itself; if the difference is real (e.g. atoms held "

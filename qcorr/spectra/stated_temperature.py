@@ -36,7 +36,7 @@ SPREAD = 5.0
 
 
 def check_stated_temperature(raw_segments: np.ndarray, wavenumber: np.ndarray, degrees_of_freedom: float,
-                             temperature_K: float) -> None:
+                             temperature_K: float, factor_check: bool = True) -> None:
     """Refuse when the kinetic temperature of all analysed atoms contradicts the stated one.
 
     Parameters
@@ -49,6 +49,10 @@ def check_stated_temperature(raw_segments: np.ndarray, wavenumber: np.ndarray, d
         f of the group.
     temperature_K : float
         The stated temperature.
+    factor_check : bool
+        Also refuse a ratio beyond :data:`FACTOR`; ``False`` checks only that 2/kT is
+        representable (the spectrum pass refuses the ratio per group, with an override:
+        :func:`qcorr.spectra.input_checks.refuse_temperature_mismatch`).
 
     Raises
     ------
@@ -59,11 +63,15 @@ def check_stated_temperature(raw_segments: np.ndarray, wavenumber: np.ndarray, d
         return
     segments = np.trapezoid(np.asarray(raw_segments, float), wavenumber, axis=-1) / degrees_of_freedom
     ratio = float(segments.mean())
-    if not math.isfinite(ratio):
+    if math.isnan(ratio):  # NaN velocities: refused, naming the frame, by the other checks
+        return
+    if math.isinf(ratio):
         raise PhysicsError(
             f"--temperature {temperature_K:g}: the spectrum's factor 2/kT is not representable in double "
             "precision at this temperature; give the simulation's temperature in K"
         )
+    if not factor_check:
+        return
     if segments.size >= 2:
         standard_error = float(segments.std(ddof=1)) / math.sqrt(segments.size)
     else:

@@ -38,7 +38,7 @@ Layout of the table: ``DEVELOPERS.md`` ("The property table").  The integrals ar
 References
 ----------
 .. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, J. Chem. Phys. 79,
-   2375 (1983). doi:10.1063/1.446044
+   2375 (1983).
 """
 
 from __future__ import annotations

@@ -31,7 +31,7 @@ u_1 = c h (methods of product integration, e.g. Davis & Rabinowitz [2]_).
 References
 ----------
 .. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, J. Chem. Phys. 79,
-   2375 (1983). doi:10.1063/1.446044
+   2375 (1983).
 .. [2] P. J. Davis, P. Rabinowitz, Methods of Numerical Integration, 2nd ed.
    (Academic Press, 1984), section 2.5 (product integration).
 .. [3] A. A. Maradudin, E. W. Montroll, G. H. Weiss, I. P. Ipatova, Theory of Lattice

@@ -18,8 +18,8 @@ Conventions (all functions, no I/O here):
   (energies); conversions to J/(mol K) and kJ/mol use ``qcorr.constants``.
 
 Sources.  The equations here (Δ, the fluidicity equation, the Lorentzian gas spectrum,
-the hard-sphere entropy, the rigid-rotor gas, the weights) are the team's reconstruction of
-[1]_ and [2]_ (``methods.md`` §3), checked for internal consistency (sum rules, limits, the
+the hard-sphere entropy, the rigid-rotor gas, the weights) are implemented from
+[1]_ and [2]_ as summarised in ``methods.md`` §3, and checked for internal consistency (sum rules, limits, the
 Carnahan–Starling form of the fluidicity equation, the Sackur–Tetrode and rigid-rotor limits;
 ``tests/test_twophase.py``).  They were *not* checked against the printed papers: in the
 stored copies available to us only the abstracts of [1]_ and [2]_ could be read (searches
@@ -60,7 +60,7 @@ References
    rigid spheres", J. Chem. Phys. 51, 635 (1969). doi:10.1063/1.1672048
 .. [4] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, "Thermodynamics
    and quantum corrections from molecular dynamics for liquid water",
-   J. Chem. Phys. 79, 2375 (1983). doi:10.1063/1.446100
+   J. Chem. Phys. 79, 2375 (1983).
 """
 
 from __future__ import annotations

@@ -302,6 +302,10 @@ def _evaluate_group(ds: xr.Dataset, g: int, gin: GroupInput, opts: TwoPhaseOptio
     gin = segments_rescaled(gin, wavenumber)
     if source == "msd":
         d_used = gin.msd_diffusion_m2_per_s + d_correction
+        if d_used < 0:  # a slope of a non-diffusing group's MSD that scatters below zero
+            notes.append(f"group '{name}': D from the MSD is {d_used:.3g} m2/s, below zero (a group that does "
+                         "not diffuse); taken as 0, so the translation is solid-like")
+            d_used = 0.0
         s0_segments = [s0_of(d_used)] * n_seg
     elif source == "vacf-integral":
         d_used = gk.value + d_correction

@@ -67,9 +67,10 @@ TWO_PHASE_CAUTIONS = (
         "anharmonic (configurational) part (Madarasz et al. 2021)."
     ),
     (
-        "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) follow the "
-        "team's reconstruction of Lin et al. (2003, 2010); only the papers' abstracts could be read, "
-        "so no equation was checked against print. The default gas volume V/N is empirical: the "
+        "Published-form choices (hard-sphere entropy with ln z, rotational fluidicity) implement Lin et al. "
+        "(2003, 2010) as summarised in the project's method notes; the printed equations could not be "
+        "re-read for this release, so no equation number is cited; the defaults are validated against "
+        "thermodynamic integration instead. The default gas volume V/N is empirical: the "
         "variant closest to thermodynamic integration on Lennard-Jones liquids (docs/liquids.md). "
         "The alternatives are options and are listed in this sidecar."
     ),

@@ -55,7 +55,7 @@ References
 ----------
 .. [1] P. H. Berens, D. H. J. Mackay, G. M. White, K. R. Wilson, "Thermodynamics
    and quantum corrections from molecular dynamics for liquid water",
-   J. Chem. Phys. 79, 2375 (1983). doi:10.1063/1.446044
+   J. Chem. Phys. 79, 2375 (1983).
 .. [2] D. A. McQuarrie, Statistical Mechanics (Harper & Row, 1976; University
    Science Books, 2000), ch. 8.
 .. [3] M. Maechler, "Accurately computing log(1 - exp(-|a|))", R package Rmpfr
