@@ -29,6 +29,7 @@ from collections.abc import Sequence
 from qcorr import __version__
 from qcorr.cli.parsing import CommandSummary, DefaultsHelpFormatter, Parser, UsageError
 from qcorr.errors import QcorrError, QcorrWarning
+from qcorr.unused_modules import leave_out
 
 #: subcommand modules, in the order they appear in ``qcorr --help``
 COMMAND_MODULES = (
@@ -137,8 +138,6 @@ def main(argv: Sequence[str] | None = None) -> int:
         return err.exit_code
     args.command_line = shlex.join(["qcorr", *argv])
     warnings.showwarning = _show_warning
-    from qcorr.unused_modules import leave_out
-
     try:
         with leave_out():  # xarray would import dask, distributed and pint for nothing (issue 16)
             return int(args._run(args) or 0)
