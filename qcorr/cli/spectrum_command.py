@@ -24,9 +24,11 @@ DESCRIPTION = (
 #: smallest frame-window work (atoms x frames read) split over worker processes by --threads;
 #: below it (about 2.5 s of reading), starting the processes costs more than it saves
 PROCESS_MIN_ATOM_FRAMES = 20_000_000
-#: parts per process when a job is split (finer parts balance the workers' start-up
-#: against the calling process, which starts at once)
-PARTS_PER_PROCESS = 4
+#: parts per process when a job is split: one, since every part re-reads the frames of
+#: the segment that straddles its start (half a segment with the default overlap) and the
+#: worker server is started at once (qcorr.spectra.worker_server); measured in
+#: docs/performance.md ("Reading cost", issue 16)
+PARTS_PER_PROCESS = 1
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -119,6 +121,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Run ``qcorr spectrum``; returns the exit status."""
+    if args.threads > 1:  # workers' imports on another core while this process imports and opens
+        from qcorr.spectra.worker_server import start_worker_server
+
+        start_worker_server()
     from qcorr.cli.spectrum_report import write_with_report
     from qcorr.reading.options import parse_block, parse_key_values, parse_option_value
     from qcorr.reading.universe import open_trajectory

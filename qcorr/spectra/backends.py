@@ -41,14 +41,12 @@ from MDAnalysis.analysis.backends import (
 )
 
 from qcorr.errors import ConfigError
+from qcorr.spectra.worker_server import FORKSERVER_PRELOAD
 
-__all__ = ["BACKENDS", "DaskBackend", "ProcessBackend", "requested_workers", "resolve_backend"]
+__all__ = ["BACKENDS", "FORKSERVER_PRELOAD", "DaskBackend", "ProcessBackend", "requested_workers", "resolve_backend"]
 
 #: backends named by a string in :meth:`qcorr.spectra.analysis.VibrationalSpectrum.run`
 BACKENDS = ("serial", "multiprocessing", "dask")
-
-#: modules the forkserver imports once for all workers
-FORKSERVER_PRELOAD = ("qcorr.spectra.analysis",)
 
 #: the shared part counter of :class:`ProcessBackend` (set in every process that takes parts)
 _PART_COUNTER = None
