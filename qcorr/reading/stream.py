@@ -240,9 +240,16 @@ def minimum_image(d: NDArray[np.float64], box) -> NDArray[np.float64]:
     float32, so the others keep their float64 displacement.  No box (or a zero one):
     *d* unchanged.
     """
-    if box is None or not np.all(np.asarray(box[:3]) > 0):
+    if box is None or d.size == 0:
         return d
-    jumped = np.any(np.abs(d) > 0.25 * float(np.min(box[:3])), axis=1)
+    edges = np.asarray(box[:3])
+    if not edges.min() > 0:  # also False for NaN edges, as np.all(edges > 0)
+        return d
+    magnitude = np.abs(d)
+    limit = 0.25 * float(edges.min())
+    if not magnitude.max() > limit:  # one reduction; the per-atom mask only when some atom jumped
+        return d
+    jumped = np.any(magnitude > limit, axis=1)
     if jumped.any():
         from MDAnalysis.lib.distances import minimize_vectors
 
