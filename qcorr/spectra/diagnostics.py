@@ -379,7 +379,7 @@ def check_kinetic_series(ds: xr.Dataset) -> Diagnostic:
     x, x_se = found["kinetic_variance_ratio"]
     halves = found["kinetic_energy_halves_kJ_per_mol"]
     return Diagnostic("kinetic_energy_series", "ok", (
-        f"{found['frames']} frames: kinetic-energy variance {x:.3f} ± {x_se:.3f} times the canonical "
+        f"over {found['frames']} frames, kinetic-energy variance {x:.3f} ± {x_se:.3f} times the canonical "
         "(f/2)(kT)^2 (1 in NVT/NPT, below 1 in NVE); total-momentum variance "
         f"{found['momentum_change_ratio']:.3g} times 3MkT (0 when conserved); mean kinetic energy "
         f"{halves[0]:.6g} and {halves[1]:.6g} kJ/mol in the two halves "
