@@ -171,7 +171,11 @@ def check_resolution(ds: xr.Dataset) -> Diagnostic:
         f"{used_ps:g} ps of trajectory"
     )
     bad = False
-    if n_seg < MIN_SEGMENTS:
+    window = int(ds.attrs.get("segment_count_window", n_seg) or n_seg)
+    if n_seg < MIN_SEGMENTS and int(ds.attrs.get("block_count", 1) or 1) > 1 and window >= MIN_SEGMENTS:
+        # one frame block of a split run: its errors come from the joined spectrum
+        msg += f"; this block of {int(ds.attrs['block_count'])} holds {n_seg} of the window's {window} segments"
+    elif n_seg < MIN_SEGMENTS:
         bad = True
         msg += f"; fewer than {MIN_SEGMENTS} segments give no reliable standard error: use a longer trajectory or a shorter --segment-ps"
     if res > MAX_RESOLUTION_WAVENUMBER:
