@@ -43,6 +43,8 @@ MOLAR_MASS = "g mol-1"
 MOMENT_OF_INERTIA = "g mol-1 angstrom2"
 #: mass-weighted velocity product, Σ m v·v
 MASS_VELOCITY_SQUARED = "g mol-1 angstrom2 ps-2"
+#: momentum of a set of atoms (mass in u × velocity in Å/ps)
+MOMENTUM = "g mol-1 angstrom ps-1"
 #: diffusion coefficient
 DIFFUSION = "m2 s-1"
 
@@ -62,6 +64,7 @@ _PRETTY = {
     MOLAR_MASS: "g/mol",
     MOMENT_OF_INERTIA: "g/mol Å²",
     MASS_VELOCITY_SQUARED: "g/mol Å²/ps²",
+    MOMENTUM: "g/mol Å/ps",
     DIFFUSION: "m²/s",
 }
 

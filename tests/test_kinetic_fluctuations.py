@@ -83,23 +83,43 @@ def _write_lattice_trajectory(lattice, directory, frames: int, spacing_ps: float
 def test_harmonic_crystal_kinetic_energy_and_heat_capacity(tmp_path):
     """The spectrum pass stores the analytic kinetic energy of every frame (float32 velocities:
     relative 1e-5), and the NVE heat capacity from it is the crystal's f k within 3 standard
-    errors + the 0.6 % quadrature offset of its mode energies."""
+    errors + the 0.6 % quadrature offset of its mode energies.
+
+    Two runs of the same crystal: a densely sampled one (0.02 ps, 25 frames per shortest period)
+    through ``qcorr spectrum``, whose stored kinetic energies are checked frame by frame; and
+    the sparse one (37.3 ps, module docstring) for the heat capacity: its frames are too far
+    apart for a spectrum (``qcorr spectrum`` refuses them: the positions do not follow the
+    velocities), so its analytic kinetic energies replace the dense file's series and go
+    through ``corrected_properties``, the library call of ``qcorr corrected``."""
+    from qcorr import corrected_properties
+    from qcorr.spectra.kinetic_series import (
+        FRAME_TIME,
+        KINETIC_ENERGY,
+        KJ_PER_MOL_IN_U_A2_PER_PS2,
+        TOTAL_MOMENTUM,
+        kinetic_variables,
+    )
+
     lattice = harmonic_lattice.make_lattice(5, temperature_K=100.0)
-    spacing, frames = 37.3, 4000
-    analytic = _write_lattice_trajectory(lattice, tmp_path, frames, spacing)
-    spectrum = tmp_path / "lattice.nc"
-    assert _qcorr("spectrum", "--topology", tmp_path / "lattice.pdb", "--trajectory", tmp_path / "lattice.trr",
-                  "--temperature", 100, "--segment-ps", 10 * spacing, "--output", spectrum,
-                  "--progress", "never") == 0
-    ds = xr.open_dataset(spectrum)
-    stored = ds["kinetic_energy"].values
+    dense = tmp_path / "dense"
+    dense.mkdir()
+    dense_kinetic = _write_lattice_trajectory(lattice, dense, 400, 0.02)
+    spectrum = dense / "lattice.nc"
+    assert _qcorr("spectrum", "--topology", dense / "lattice.pdb", "--trajectory", dense / "lattice.trr",
+                  "--temperature", 100, "--segment-ps", 2.0, "--output", spectrum, "--progress", "never") == 0
+    ds = xr.load_dataset(spectrum)
+    stored = ds[KINETIC_ENERGY].values
     count = stored.size  # the frames the segments cover
-    assert count >= 0.99 * frames
-    np.testing.assert_allclose(stored, analytic[:count], rtol=1e-5)
+    assert count >= 0.99 * 400
+    np.testing.assert_allclose(stored, dense_kinetic[:count], rtol=1e-5)
     assert float(ds["degrees_of_freedom"].sel(group="total")) == lattice.degrees_of_freedom
-    out = tmp_path / "nve.csv"
-    assert _qcorr("corrected", spectrum, "--ensemble", "nve", "--output", out, "--quiet") == 0
-    frame = table.read_table(out)
+
+    spacing, frames = 37.3, 4000
+    times = np.arange(frames) * spacing
+    sparse = np.array([harmonic_lattice.kinetic_energy_kJ_per_mol(lattice, t) for t in times])
+    series = kinetic_variables(times, sparse * KJ_PER_MOL_IN_U_A2_PER_PS2, np.zeros((frames, 3)))
+    sparse_ds = ds.drop_vars([KINETIC_ENERGY, TOTAL_MOMENTUM, FRAME_TIME]).assign(series)
+    frame = corrected_properties(sparse_ds, ensemble="nve", system="lattice")
     row = frame[(frame["property"] == "heat_capacity") & (frame["basis"] == "per_mole_atoms")].iloc[0]
     assert row["classical_source"] == "kinetic_fluctuation"
     f_k = lattice.degrees_of_freedom * R / lattice.atoms  # per mole of atoms

@@ -464,7 +464,7 @@ def test_molecular_frame_blocks_combine_to_the_single_job(tmp_path, run_qcorr, s
     tables = []
     for name in (single, joined):
         out = tmp_path / f"{name.stem}.csv"
-        code, _, err = run_qcorr("liquid", name, "--group", "water", "--symmetry-number", "2",
+        code, _, err = run_qcorr("liquid", name, "--groups", "water", "--symmetry-number", "2",
                                  "--quiet", "--output", out)
         assert code == 0, err
         tables.append(pd.read_csv(out))

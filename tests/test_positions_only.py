@@ -103,6 +103,9 @@ def test_xtc_positions_give_the_stored_velocity_results(system, spacing, data, t
     # acceptance: quantum heat capacity within 2 %, zero-point energy within 5 % of the stored velocities'
     cv_s, zpe_s = _quantum(stored)
     cv_x, zpe_x = _quantum(xtc)
+    print(f"{system}, XTC every {spacing} fs: quantum C_V {cv_x:.3f} vs {cv_s:.3f} J/(mol K) ({cv_x / cv_s - 1:+.2%}), "
+          f"zero-point energy {zpe_x:.4f} vs {zpe_s:.4f} kJ/mol ({zpe_x / zpe_s - 1:+.2%}), noise share "
+          f"{float(xtc['position_noise_share'][0]):.1%}")
     assert cv_x == pytest.approx(cv_s, rel=0.02)
     assert zpe_x == pytest.approx(zpe_s, rel=0.05)
     # the subtracted noise equals the noise measured on the file

@@ -56,7 +56,7 @@ def test_file_follows_contract_and_is_byte_reproducible(single_job, oscillator_f
     assert all(len(f["sha256"]) == 64 for f in inputs)
     checks = json.loads(ds.attrs["diagnostics"])
     assert {c["check"] for c in checks} == {"aliasing", "resolution", "temperature", "centre_of_mass_drift", "sum_rule",
-                                          "kinetic_energy_series", "time_axis", "position_noise"}
+                                          "time_axis", "position_noise", "kinetic_energy_series"}
     # same command again -> byte-identical file (no time stamps stored)
     again = tmp_path / "single.nc"
     code, _, err = run_qcorr(*_args(oscillator_files, None, "--output", again))

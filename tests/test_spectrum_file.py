@@ -179,7 +179,7 @@ def test_diagnostics_fire_on_their_thresholds():
     status = lambda ds: {d.check: d.status for d in diagnostics.run_diagnostics(ds)}
     assert status(_assembled()) == {"aliasing": "ok", "resolution": "ok", "temperature": "ok",
                                     "centre_of_mass_drift": "ok", "sum_rule": "ok", "time_axis": "ok",
-                                    "position_noise": "ok"}
+                                    "position_noise": "ok", "kinetic_energy_series": "ok"}
     assert status(_assembled(shape="flat"))["aliasing"] == "warning"  # 5 % of the weight near Nyquist
     assert status(_assembled(n_segments=3))["resolution"] == "warning"
     # temperature and sum rule: limits from the segment scatter, tested in tests/test_diagnostics.py

@@ -562,7 +562,7 @@ def test_liquid_choices_reach_qcorr_liquid(demo_copy, tmp_path):
     default = next(c for c in commands if f"--system {water['system']} " in c)
     custom = next(c for c in commands if "--system water_choices " in c)
     for text in ("--hard-sphere-entropy published", "--rotational-fluidicity from-rotation",
-                 "--diffusion-from spectrum"):
+                 "--diffusion-from auto"):
         assert text in default
     for text in ("--hard-sphere-entropy constant-volume",
                  "--rotational-fluidicity same-as-translation", "--diffusion-from msd"):

@@ -233,7 +233,8 @@ def _lammps(path: Path, where: str, style: str | None) -> EnergySeries:
     if norm and norm[-1] == "yes":
         raise UnitsError(f"{where}: the log sets 'thermo_modify norm yes' (energies per atom); "
                          "rerun or reprint thermo output with 'norm no' (per system)")
-    log = lammps_logfile.File(os.fspath(path))
+    with open(path, encoding="utf-8", errors="replace") as handle:  # the library leaves a path's file open
+        log = lammps_logfile.File(handle)
     runs = log.get_num_partial_logs()
     if runs == 0:
         raise ConfigError(f"{where} holds no thermo output; check --energy-format")

@@ -227,7 +227,7 @@ def microcanonical_heat_capacity(
         raise PhysicsError(
             f"{where}: the kinetic-energy variance is {x:.3f} ± {x_se:.3f} times the canonical "
             "(f/2)(kT)^2, not clearly below it as in a microcanonical (NVE) run: the run is "
-            "thermostatted or too short; declare the ensemble the run used (nvt: C_V from the "
+            "thermostatted or too short; for a thermostatted run declare --ensemble nvt (C_V from the "
             "total-energy fluctuations of an energy file)")
     value = 0.5 * f_dof * C.gas_constant_J_per_mol_K / (1.0 - x)
     se = value * x_se / (1.0 - x)

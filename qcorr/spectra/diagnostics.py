@@ -185,7 +185,11 @@ def check_resolution(ds: xr.Dataset) -> Diagnostic:
         f"{used_ps:g} ps of trajectory"
     )
     bad = False
-    if n_seg < MIN_SEGMENTS:
+    window = int(ds.attrs.get("segment_count_window", n_seg) or n_seg)
+    if n_seg < MIN_SEGMENTS and int(ds.attrs.get("block_count", 1) or 1) > 1 and window >= MIN_SEGMENTS:
+        # one frame block of a split run: its errors come from the joined spectrum
+        msg += f"; this block of {int(ds.attrs['block_count'])} holds {n_seg} of the window's {window} segments"
+    elif n_seg < MIN_SEGMENTS:
         bad = True
         msg += f"; fewer than {MIN_SEGMENTS} segments give no reliable standard error: use a longer trajectory or a shorter --segment-ps"
     if res > MAX_RESOLUTION_WAVENUMBER:
@@ -393,7 +397,7 @@ def check_kinetic_series(ds: xr.Dataset) -> Diagnostic:
     x, x_se = found["kinetic_variance_ratio"]
     halves = found["kinetic_energy_halves_kJ_per_mol"]
     return Diagnostic("kinetic_energy_series", "ok", (
-        f"{found['frames']} frames: kinetic-energy variance {x:.3f} ± {x_se:.3f} times the canonical "
+        f"over {found['frames']} frames, kinetic-energy variance {x:.3f} ± {x_se:.3f} times the canonical "
         "(f/2)(kT)^2 (1 in NVT/NPT, below 1 in NVE); total-momentum variance "
         f"{found['momentum_change_ratio']:.3g} times 3MkT (0 when conserved); mean kinetic energy "
         f"{halves[0]:.6g} and {halves[1]:.6g} kJ/mol in the two halves "

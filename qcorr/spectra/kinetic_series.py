@@ -14,6 +14,7 @@ import numpy as np
 import xarray as xr
 
 from qcorr import constants as C
+from qcorr import units
 
 #: spectrum-file variable: kinetic energy of the whole system per frame, kJ/mol (per mole of systems)
 KINETIC_ENERGY = "kinetic_energy"
@@ -44,11 +45,11 @@ def kinetic_variables(time_ps, kinetic_u_A2_per_ps2, momentum_u_A_per_ps) -> dic
     return {
         KINETIC_ENERGY: xr.DataArray(
             np.asarray(kinetic_u_A2_per_ps2, dtype=float) / KJ_PER_MOL_IN_U_A2_PER_PS2, dims=(FRAME,),
-            coords=coords, attrs={"units": "kJ mol-1", "long_name": "kinetic energy of the whole system "
+            coords=coords, attrs={"units": units.MOLAR_ENERGY, "long_name": "kinetic energy of the whole system "
                                   "(centre-of-mass motion removed), per mole of systems"}),
         TOTAL_MOMENTUM: xr.DataArray(
             np.asarray(momentum_u_A_per_ps, dtype=float).reshape(-1, 3), dims=(FRAME, "spatial"),
-            coords=coords, attrs={"units": "g mol-1 angstrom ps-1",
+            coords=coords, attrs={"units": units.MOMENTUM,
                                   "long_name": "total momentum before the centre-of-mass removal"}),
     }
 
