@@ -185,7 +185,7 @@ def test_velocities_in_a_wrong_unit_zero_or_unchanging_are_refused(oscillator_sc
 
 def test_kinetic_temperature_off_by_a_factor_is_refused_unless_allowed(oscillator_files, tmp_path, run_qcorr):
     top, trr, out = oscillator_files["topology"], oscillator_files["trr"], tmp_path / "s.nc"
-    message = _refused(_run(run_qcorr, top, trr, out, temperature=30), out, "group 'total'", "300 K", "stated 30 K")
+    message = _refused(_run(run_qcorr, top, trr, out, temperature=30), out, "group 'total'", "300 K", "stated --temperature 30 (in K")
     for cause in ("frame spacing", "--lammps-units", "--mass", "--constraints", "--allow-temperature-mismatch"):
         assert cause in message
     code, _, err = _run(run_qcorr, top, trr, out, "--allow-temperature-mismatch", temperature=30)
