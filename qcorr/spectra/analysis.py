@@ -55,16 +55,14 @@ from MDAnalysis.analysis.backends import BackendBase, BackendSerial
 from MDAnalysis.analysis.base import AnalysisBase
 from MDAnalysis.analysis.results import Results, ResultsGroup
 
-from qcorr.constants import speed_of_light_cm_per_s
 from qcorr.errors import ConfigError, QcorrWarning
 from qcorr.reading.groups import assign_degrees_of_freedom, select_groups
 from qcorr.reading.input_files import name_and_size, start_describing_files
 from qcorr.reading.masses import masses_with_overrides, massive_atoms
-from qcorr.reading.stream import FrameStatistics, VelocitySampler, window_frames
+from qcorr.reading.stream import window_frames
 from qcorr.reading.time_axis import evenly_spaced_frames
 from qcorr.reading.universe import wrap_universe
 from qcorr.spectra.assemble import (
-    SpectrumParts,
     group_table,
     spectrum_attributes,
     spectrum_from_parts,
@@ -72,9 +70,7 @@ from qcorr.spectra.assemble import (
 from qcorr.spectra.backends import BACKENDS, requested_workers, resolve_backend
 from qcorr.spectra.blocks import join_spectrum_parts
 from qcorr.spectra.diagnostics import announce, diagnose
-from qcorr.spectra.estimator import SegmentAccumulator
-from qcorr.spectra.molecular_pass import MolecularPass
-from qcorr.spectra.raw_vdos import raw_spectra
+from qcorr.spectra.part_pass import PartPass
 from qcorr.spectra.reading_checks import ReadingChecks
 from qcorr.spectra.run_plan import RunPlan, check_settings, plan_run
 from qcorr.spectra.spectrum_file import write_spectrum
@@ -440,76 +436,20 @@ class VibrationalSpectrum(AnalysisBase):
 
     def _prepare(self) -> None:
         """Estimators and running sums of the current part (fresh results)."""
-        part, plan = self._part, self._plan
-        channels = self._channels
-        members = np.array([g.members for g in self._groups], dtype=bool)
         self.results = Results()
-        self._statistics = FrameStatistics()
-        # stored velocities stay in the reader's single precision through the atomic estimator
-        # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
-        # and finite differences work in float64
-        self._sampler = VelocitySampler(
-            self._opened, channels, plan.window, source=self._velocities_from,
-            dtype=np.float64 if self._molecular else np.float32, statistics=self._statistics,
-            count_from=part.first_sample, count_stop=part.count_stop)
-        self._accumulator = SegmentAccumulator(
-            plan.settings, channels.masses, members, 3, self._fft_threads,
-            first_segment=part.first_segment, stop_segment=part.stop_segment)
-        self._molecular_pass = None
-        if self._molecular:
-            self._molecular_pass = MolecularPass(
-                self._atoms.universe, channels.indices, channels.masses, members, plan.settings,
-                first_frame=plan.window.start, definition=self._molecules,
-                first_segment=part.first_segment, stop_segment=part.stop_segment,
-                workers=self._fft_threads, first_sample=part.first_sample, count_stop=part.count_stop)
-
-    @property
-    def _finite_difference_timestep_ps(self) -> float | None:
-        return self._plan.window.timestep_ps if self._velocities_from == "positions" else None
+        self._pass = PartPass(
+            self._opened, self._channels, self._groups, self._atoms.universe, self._plan, self._part,
+            velocities_from=self._velocities_from, molecular=self._molecular, molecules=self._molecules,
+            fft_threads=self._fft_threads, temperature_K=self._temperature, checks=self._checks)
 
     def _single_frame(self) -> None:
         """One frame: its velocity sample goes to the atomic and molecular estimators."""
-        velocities = self._sampler.add(self._ts, self._part.read_from + self._frame_index)
-        if velocities is None:  # first frame of a run of differences
-            return
-        sample = self._sampler.sample
-        if sample >= self._part.first_sample:
-            self._accumulator.add_frame(velocities)
-        if self._molecular_pass is not None:
-            self._molecular_pass.add_frame(velocities, self._ts, sample=sample,
-                                           finite_difference_timestep_ps=self._finite_difference_timestep_ps)
+        self._pass.add(self._ts, self._part.read_from + self._frame_index)
 
     def _finish_part(self) -> None:
         """The part's :class:`SpectrumParts` (``results.spectrum_parts``); estimators released."""
-        part, plan = self._part, self._plan
-        fd = self._finite_difference_timestep_ps
-        powers = self._accumulator.result()
-        molecular = None
-        if self._molecular_pass is not None:
-            molecular = self._molecular_pass.parts(
-                self._temperature, [g.constraints for g in self._groups],
-                finite_difference_timestep_ps=fd)
-        stats = self._statistics
-        raw, correlation, noise = self._checks.subtract(
-            raw_spectra(powers.power, powers.frequency_Hz, self._temperature, finite_difference_timestep_ps=fd),
-            powers.correlation, powers.frequency_Hz)
-        self.results.spectrum_parts = SpectrumParts(
-            raw_segments=raw,
-            correlation_segments=correlation,
-            segment_index=np.arange(part.first_segment, part.stop_segment, dtype=np.int64),
-            segment_first_frame=plan.window.start + powers.segment_first_frame * plan.window.step,
-            wavenumber=powers.frequency_Hz / speed_of_light_cm_per_s,
-            lag_ps=powers.lag_ps,
-            statistics_frames=stats.frames,
-            box_volume_sum_A3=stats.box_volume_sum_A3,
-            com_mv2_sum=stats.com_kinetic_sum,
-            molecular=molecular,
-            kinetic_samples=np.asarray(stats.samples, dtype=np.int64),
-            kinetic_u_A2_per_ps2=np.asarray(stats.kinetic, dtype=float),
-            momentum_u_A_per_ps=np.asarray(stats.momentum, dtype=float).reshape(-1, 3),
-            noise=noise,
-        )
-        self._sampler = self._accumulator = self._molecular_pass = self._statistics = None
+        self.results.spectrum_parts = self._pass.finish()
+        self._pass = None
 
     def _get_aggregator(self) -> ResultsGroup:
         """Parts are joined in order by :func:`qcorr.spectra.blocks.join_spectrum_parts`."""
