@@ -285,7 +285,7 @@ def test_demo_workflow_on_slurm_equals_local_run(slurm_cluster, tmp_path):
     # the classical and quantum values it came from).
     numeric = local_table.select_dtypes("number").columns
     text = [c for c in local_table.columns if c not in numeric]
-    pd.testing.assert_frame_equal(cluster_table[text].fillna(""), local_table[text].fillna(""))
+    pd.testing.assert_frame_equal(cluster_table[text].astype(object).fillna(""), local_table[text].astype(object).fillna(""))
     a = cluster_table[numeric].to_numpy(dtype=float)
     b = local_table[numeric].to_numpy(dtype=float)
     assert (np.isnan(a) == np.isnan(b)).all(), "empty cells differ between the runs"

@@ -132,7 +132,7 @@ def assert_tables_equal(got: pd.DataFrame, expected: pd.DataFrame, rtol: float) 
             assert (abs(a[both] - b[both]) <= allowed).all(), (
                 column, float(max(abs(a[both] - b[both]) - allowed)))
         else:
-            assert got[column].fillna("").tolist() == expected[column].fillna("").tolist(), column
+            assert got[column].astype(object).fillna("").tolist() == expected[column].astype(object).fillna("").tolist(), column
 
 
 # ----------------------------------------------------------------------------- fixtures
