@@ -7,6 +7,7 @@ import math
 import sys
 from pathlib import Path
 
+import lennard_jones_eos as eos
 import numpy as np
 import pandas as pd
 import pytest
@@ -242,48 +243,19 @@ def test_no_volume_and_polyatomic_without_decomposition(tmp_path, run_qcorr):
 
 
 # ------------------------------------------------------------ real MD: Lennard-Jones argon
-#: Johnson, Zollweg, Gubbins, "The Lennard-Jones equation of state revisited",
-#: Mol. Phys. 78, 591 (1993), Table 10: the 32 parameters of the modified
-#: Benedict-Webb-Rubin residual Helmholtz energy (gamma = 3); the a_i(T), b_i(T)
-#: and G_i(rho) forms are their Tables 5 and 6.
-JZG_X = (
-    0.8623085097507421, 2.976218765822098, -8.402230115796038, 0.1054136629203555,
-    -0.8564583828174598, 1.582759470107601, 0.7639421948305453, 1.753173414312048,
-    2.798291772190376e3, -4.8394220260857657e-2, 0.9963265197721935, -3.698000291272493e1,
-    2.084012299434647e1, 8.305402124717285e1, -9.574799715203068e2, -1.477746229234994e2,
-    6.398607852471505e1, 1.603993673294834e1, 6.805916615864377e1, -2.791293578795945e3,
-    -6.245128304568454, -8.116836104958410e3, 1.488735559561229e1, -1.059346754655084e4,
-    -1.131607632802822e2, -8.867771540418822e3, -3.986982844450543e1, -4.689270299917261e3,
-    2.593535277438717e2, -2.694523589434903e3, -7.218487631550215e2, 1.721802063863269e2,
-)
+# The Johnson, Zollweg, Gubbins equation of state (Mol. Phys. 78, 591 (1993)) is implemented
+# once, in tests/lennard_jones_eos.py.
 
 
-def jzg_residual_helmholtz(t, rho, gamma=3.0):
+def jzg_residual_helmholtz(t, rho):
     """A_res/(N eps) of the full LJ fluid at reduced T*, rho* (JZG 1993)."""
-    x = (None, *JZG_X)
-    a = (x[1] * t + x[2] * math.sqrt(t) + x[3] + x[4] / t + x[5] / t**2,
-         x[6] * t + x[7] + x[8] / t + x[9] / t**2,
-         x[10] * t + x[11] + x[12] / t,
-         x[13],
-         x[14] / t + x[15] / t**2,
-         x[16] / t,
-         x[17] / t + x[18] / t**2,
-         x[19] / t**2)
-    b = (x[20] / t**2 + x[21] / t**3, x[22] / t**2 + x[23] / t**4, x[24] / t**2 + x[25] / t**3,
-         x[26] / t**2 + x[27] / t**4, x[28] / t**2 + x[29] / t**3,
-         x[30] / t**2 + x[31] / t**3 + x[32] / t**4)
-    f = math.exp(-gamma * rho * rho)
-    g = [(1 - f) / (2 * gamma)]
-    for i in range(2, 7):
-        g.append(-(f * rho ** (2 * (i - 1)) - 2 * (i - 1) * g[-1]) / (2 * gamma))
-    return sum(a[i] * rho ** (i + 1) / (i + 1) for i in range(8)) + sum(b[i] * g[i] for i in range(6))
+    return float(eos.jzg_residual_helmholtz(t, rho))
 
 
-def jzg_residual_energy_entropy(t, rho, h=1e-5):
-    """(U_res/(N eps), S_res/(N k)) from A_res by U = -T^2 d(A/T)/dT, S = (U - A)/T."""
-    f = lambda tt: jzg_residual_helmholtz(tt, rho) / tt
-    u = -t * t * (f(t + h) - f(t - h)) / (2 * h)
-    return u, (u - jzg_residual_helmholtz(t, rho)) / t
+def jzg_residual_energy_entropy(t, rho):
+    """(U_res/(N eps), S_res/(N k)) of JZG: U = d(A/T)/d(1/T), S = (U - A)/T."""
+    return (eos.residual_energy(eos.jzg_residual_helmholtz, t, rho),
+            eos.residual_entropy(eos.jzg_residual_helmholtz, t, rho))
 
 
 def test_jzg_implementation_reproduces_second_virial_coefficient():
