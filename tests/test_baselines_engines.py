@@ -19,16 +19,14 @@ Cost on a 2-core machine: about 90 s of LAMMPS; the argon reference is shared wi
 
 from __future__ import annotations
 
-import importlib.util
 import math
 import os
-import sys
-from pathlib import Path
 
 import engine_energies as engines
 import lennard_jones_eos as eos
 import numpy as np
 import pytest
+from repository_scripts import load_script
 
 from qcorr import constants as C
 from qcorr.baselines import classical, energy_files
@@ -126,27 +124,12 @@ def test_declaring_nve_for_a_thermostatted_run_is_refused(lammps_series, run_qco
     assert not out.exists() and not table.sidecar_path(out).exists()
 
 
-def _liquid_references():
-    path = Path(__file__).resolve().parent.parent / "scripts" / "make_liquid_references.py"
-    spec = importlib.util.spec_from_file_location("make_liquid_references", path)
-    module = sys.modules.get("make_liquid_references")
-    if module is None:
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[spec.name] = module
-        sys.path.insert(0, str(path.parent))
-        try:
-            spec.loader.exec_module(module)
-        finally:
-            sys.path.remove(str(path.parent))
-    return module
-
-
 @pytest.mark.slow
 def test_microcanonical_heat_capacity_of_the_argon_reference_agrees_with_du_dt():
     """LPV C_V from the kinetic energy in the NVE run's StateDataReporter file (f = 3N − 3: OpenMM
     removes the centre-of-mass motion) against C_V = dU/dT of the same model from its canonical
     isochore (reference.json, 21.27 ± 0.60 J/(mol K) when made); 3 combined standard errors."""
-    refs = _liquid_references()
+    refs = load_script("make_liquid_references")
     reference = refs.load_liquid_reference("argon_liquid_86K")
     series = energy_files.read_energy_file(reference.energies, "openmm-csv")
     atoms = 500

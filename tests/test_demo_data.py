@@ -9,7 +9,6 @@ qcorr.
 
 from __future__ import annotations
 
-import importlib.util
 import json
 import math
 import shutil
@@ -20,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from repository_scripts import load_script
 
 from qcorr.constants import avogadro_per_mol, boltzmann_J_per_K, speed_of_light_cm_per_s
 
@@ -28,19 +28,7 @@ DEMO = ROOT / "resources" / "demo"
 SCRIPT = ROOT / "scripts" / "make_demo_data.py"
 
 
-def _load_script():
-    spec = importlib.util.spec_from_file_location("make_demo_data", SCRIPT)
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module  # dataclasses look their module up here
-    sys.path.insert(0, str(SCRIPT.parent))
-    try:
-        spec.loader.exec_module(module)
-    finally:
-        sys.path.remove(str(SCRIPT.parent))
-    return module
-
-
-demo_script = _load_script()
+demo_script = load_script("make_demo_data")
 SYSTEMS = list(demo_script.DEMO_SYSTEMS)
 
 #: IUPAC standard atomic weights (abridged, CIAAW), as MDAnalysis tabulates them, in u.

@@ -25,15 +25,14 @@ Equilib. 100, 1 (1994)), fitted to other simulation data with another functional
 from __future__ import annotations
 
 import dataclasses
-import importlib.util
 import math
 import shutil
-import sys
 from pathlib import Path
 
 import lennard_jones_eos as eos
 import numpy as np
 import pytest
+from repository_scripts import load_script
 
 from qcorr.constants import avogadro_per_mol, boltzmann_J_per_K, gas_constant_J_per_mol_K
 
@@ -41,19 +40,7 @@ ROOT = Path(__file__).resolve().parent.parent
 SCRIPTS = ROOT / "scripts"
 
 
-def _load(name: str):
-    spec = importlib.util.spec_from_file_location(name, SCRIPTS / f"{name}.py")
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module  # dataclasses and worker processes look the module up by name
-    sys.path.insert(0, str(SCRIPTS))
-    try:
-        spec.loader.exec_module(module)
-    finally:
-        sys.path.remove(str(SCRIPTS))
-    return module
-
-
-refs = _load("make_liquid_references")
+refs = load_script("make_liquid_references")
 ARGON = refs.LIQUID_SYSTEMS["argon_liquid_86K"]
 MIXTURE = refs.LIQUID_SYSTEMS["argon_krypton_liquid_117K"]
 K_KJ = refs.BOLTZMANN_KJ_PER_MOL_K

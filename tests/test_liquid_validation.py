@@ -23,14 +23,13 @@ What is asserted, and why:
 
 from __future__ import annotations
 
-import importlib.util
 import math
-import sys
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from repository_scripts import load_script
 from scipy import constants as sc
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -44,24 +43,12 @@ MIXING_RULE_ACCURACY = 0.015
 pytestmark = pytest.mark.slow
 
 
-def _load(name: str):
-    spec = importlib.util.spec_from_file_location(name, SCRIPTS / f"{name}.py")
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module
-    sys.path.insert(0, str(SCRIPTS))
-    try:
-        spec.loader.exec_module(module)
-    finally:
-        sys.path.remove(str(SCRIPTS))
-    return module
-
-
 @pytest.fixture(scope="module")
 def spectra_of_references(tmp_path_factory):
     """Spectrum files (5 ps segments, --molecular) of both references, and the references."""
     from qcorr.cli import main
 
-    refs = _load("make_liquid_references")
+    refs = load_script("make_liquid_references")
     output_dir = refs.default_output_dir()
     refs.make_references(list(refs.LIQUID_SYSTEMS.values()), output_dir, jobs=2)
     out = tmp_path_factory.mktemp("liquid_validation")

@@ -27,14 +27,13 @@ Checks, with their outside references:
 
 from __future__ import annotations
 
-import importlib.util
 import json
-import sys
 import warnings
 from pathlib import Path
 
 import numpy as np
 import pytest
+from repository_scripts import load_script
 
 from qcorr.spectra.spectrum_file import read_spectrum
 from qcorr.thermo.harmonic import harmonic_properties
@@ -46,22 +45,10 @@ SYSTEMS = {"copper_crystal_297K": (297.0, 1.0), "argon_liquid_94K": (94.4, 2.0)}
 SPACINGS_FS = (4, 10, 20)
 
 
-def _load_script():
-    spec = importlib.util.spec_from_file_location("make_positions_only_data", SCRIPTS / "make_positions_only_data.py")
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module
-    sys.path.insert(0, str(SCRIPTS))
-    try:
-        spec.loader.exec_module(module)
-    finally:
-        sys.path.remove(str(SCRIPTS))
-    return module
-
-
 @pytest.fixture(scope="module")
 def data():
     """System name -> directory (made when missing or out of date)."""
-    script = _load_script()
+    script = load_script("make_positions_only_data")
     return {name: script.load_system(name) for name in SYSTEMS}
 
 

@@ -15,14 +15,13 @@ against published values.
 
 from __future__ import annotations
 
-import importlib.util
 import math
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
 import reference_data as real
+from repository_scripts import load_script
 
 from qcorr.constants import (
     avogadro_per_mol,
@@ -37,19 +36,7 @@ ROOT = Path(__file__).resolve().parent.parent
 SCRIPTS = ROOT / "scripts"
 
 
-def _load(name: str):
-    spec = importlib.util.spec_from_file_location(name, SCRIPTS / f"{name}.py")
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module  # dataclasses look their module up here
-    sys.path.insert(0, str(SCRIPTS))
-    try:
-        spec.loader.exec_module(module)
-    finally:
-        sys.path.remove(str(SCRIPTS))
-    return module
-
-
-report = _load("write_validation_report")
+report = load_script("write_validation_report")
 engines = report.engines
 
 #: every validation row (system, quantity as named in the report script)
