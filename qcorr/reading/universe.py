@@ -119,8 +119,9 @@ class OpenedTrajectory:
     def read_frames(self, first: int, stop: int, step: int = 1):
         """Time steps of frames ``first, first+step, ... < stop`` (numbered without dropped repeats).
 
-        Consecutive frames are read with one seek and then ``next()``; dropped frames are
-        read past.  Raises EOFError if the reader ends early.
+        Consecutive frames are read with one seek and then ``next()`` (TRR and XTC files
+        through :func:`qcorr.reading.xdr_frames.xdr_frames`, the same values without
+        MDAnalysis' per-frame Timestep work); dropped frames are read past.  Raises EOFError if the reader ends early.
         """
         from qcorr.reading.stream import consecutive_frames
 
@@ -129,7 +130,10 @@ class OpenedTrajectory:
             return iter(())
         if not self.dropped_frames:
             if step == 1:
-                return consecutive_frames(trajectory, first, stop)
+                from qcorr.reading.xdr_frames import xdr_frames
+
+                fast = xdr_frames(trajectory, first, stop)  # TRR/XTC decoded without the Timestep work
+                return consecutive_frames(trajectory, first, stop) if fast is None else fast
             return iter(trajectory[first:stop:step])
         wanted = [self.physical_frame(f) for f in range(first, stop, step)]
         if step == 1:
