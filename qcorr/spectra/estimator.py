@@ -309,6 +309,42 @@ class SegmentAccumulator:
         if start >= 0 and start % hop == 0:
             self._transform_segment(start)
 
+    def add_frames(self, values: NDArray[np.floating]) -> None:
+        """Add consecutive frames, shape (n_frames, n_channels, n_components): the same as
+        :meth:`add_frame` for each in turn, with one copy per run of frames that stays
+        inside one half segment (50 % overlap); other overlaps go frame by frame.
+        """
+        values = np.asarray(values)
+        if values.ndim != 3 or values.shape[1:] != (self.n_channels, self.n_components):
+            raise TrajectoryError(
+                f"frames {self._frames_fed}.. have values of shape {values.shape}, expected "
+                f"(n, {self.n_channels}, {self.n_components})"
+            )
+        if not self._half_overlap or len(values) == 0:
+            for frame in values:
+                self.add_frame(frame)
+            return
+        if self.buffer is None:
+            self._allocate(np.float32 if values.dtype == np.float32 else np.float64)
+        L, hop = self.settings.segment_frames, self.settings.hop_frames
+        wanted = self._segments_wanted()
+        limit = None if wanted is None else (wanted - 1) * hop + L
+        rows = values.reshape(len(values), -1)
+        k = 0
+        while k < len(rows):
+            if limit is not None and self._frames_fed >= limit:
+                self._frames_fed += len(rows) - k  # beyond the block: not needed, not stored
+                return
+            at = self._frames_fed % hop
+            m = min(len(rows) - k, hop - at)
+            if limit is not None:
+                m = min(m, limit - self._frames_fed)
+            self.buffer[at:at + m] = rows[k:k + m]
+            self._frames_fed += m
+            k += m
+            if self._frames_fed % hop == 0:
+                self._transform_half(self.buffer, self._frames_fed)
+
     def _add_tapered_power(
         self, x: NDArray[np.complexfloating], w: NDArray[np.floating], power: NDArray[np.float64]
     ) -> None:

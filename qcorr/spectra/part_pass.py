@@ -16,6 +16,7 @@ import numpy as np
 
 from qcorr.constants import speed_of_light_cm_per_s
 from qcorr.reading.stream import FrameStatistics, VelocitySampler
+from qcorr.reading.velocity_blocks import StoredVelocityBlocks
 from qcorr.spectra.assemble import SpectrumParts
 from qcorr.spectra.estimator import SegmentAccumulator
 from qcorr.spectra.molecular_pass import MolecularPass
@@ -55,6 +56,12 @@ class PartPass:
         # stored velocities stay in the reader's single precision through the atomic estimator
         # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
         # and finite differences work in float64
+        self._blocks = None
+        if velocities_from == "stored" and not molecular:
+            # atomic spectra of stored velocities: a block of frames per numpy call, same values
+            self._blocks = StoredVelocityBlocks(
+                opened, channels, plan.window, statistics=self.statistics,
+                count_from=part.first_sample, count_stop=part.count_stop)
         self._sampler = VelocitySampler(
             opened, channels, plan.window, source=velocities_from,
             dtype=np.float64 if molecular else np.float32, statistics=self.statistics,
@@ -73,6 +80,9 @@ class PartPass:
     def add(self, ts, read_index: int) -> None:
         """One frame (*read_index*: its position in the window): its velocity sample goes to the
         atomic and molecular estimators."""
+        if self._blocks is not None:
+            self._feed(self._blocks.add(ts, read_index))
+            return
         velocities = self._sampler.add(ts, read_index)
         if velocities is None:  # first frame of a run of differences
             return
@@ -83,8 +93,19 @@ class PartPass:
             self._molecular.add_frame(velocities, ts, sample=sample,
                                       finite_difference_timestep_ps=self._fd_timestep)
 
+    def _feed(self, done) -> None:
+        """A completed block of samples (``(first_sample, block)`` or None) to the accumulator."""
+        if done is None:
+            return
+        first, block = done
+        skip = max(self.part.first_sample - first, 0)  # samples before the part's first are read only
+        if skip < len(block):
+            self._accumulator.add_frames(block[skip:])
+
     def finish(self) -> SpectrumParts:
         """The part's :class:`SpectrumParts`; the estimators are released."""
+        if self._blocks is not None:
+            self._feed(self._blocks.flush())
         part, plan, fd = self.part, self.plan, self._fd_timestep
         powers = self._accumulator.result()
         molecular = None
@@ -95,7 +116,7 @@ class PartPass:
         raw, correlation, noise = self._checks.subtract(
             raw_spectra(powers.power, powers.frequency_Hz, self._temperature, finite_difference_timestep_ps=fd),
             powers.correlation, powers.frequency_Hz)
-        self._sampler = self._accumulator = self._molecular = None
+        self._sampler = self._blocks = self._accumulator = self._molecular = None
         return SpectrumParts(
             raw_segments=raw,
             correlation_segments=correlation,
