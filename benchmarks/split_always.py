@@ -7,6 +7,7 @@ module imports only qcorr's command line at the top: a worker process imports it
 (as ``__mp_main__``) before it starts.
 """
 
+import gc
 import sys
 
 from qcorr.cli import main, spectrum_command
@@ -14,6 +15,7 @@ from qcorr.cli import main, spectrum_command
 if __name__ == "__main__":
     spectrum_command.PROCESS_MIN_ATOM_FRAMES = 0
     status = main(sys.argv[1:])
+    gc.freeze()  # as the qcorr executable (qcorr.cli.console_main)
     sys.path.insert(0, __file__.rsplit("/", 1)[0])
     import bench_processes
 

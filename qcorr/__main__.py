@@ -1,5 +1,5 @@
 import sys
 
-from qcorr.cli import main
+from qcorr.cli import console_main
 
-sys.exit(main())
+sys.exit(console_main())

@@ -139,12 +139,15 @@ class ProcessBackend(BackendBase):
         pool = ProcessPoolExecutor(started, mp_context=context, initializer=_share_counter,
                                    initargs=(counter,))
         results: list = [None] * len(computations)
+        # Starting a worker blocks until the forkserver has imported its preload (about 2 s);
+        # a thread starts them, so this process computes its first part meanwhile.
+        starter = _WorkerStarter(pool, started, payload, computations)
         try:
-            futures = [pool.submit(_take_parts, payload, computations) for _ in range(started)]
             _share_counter(counter)
             done = _take_parts(None, computations, func)
-            for future in futures:
-                done += future.result()
+            if len(done) < len(computations):  # workers took the others: collect them
+                for future in starter.futures():
+                    done += future.result()
         except BrokenProcessPool:
             raise ConfigError(
                 f"{self.n_workers} processes: a worker process stopped before it finished (out of "
@@ -152,11 +155,58 @@ class ProcessBackend(BackendBase):
                 "started workers need); use fewer processes or fix that"
             ) from None
         finally:
-            # every part is done (or failed); do not wait for the workers' exit
-            pool.shutdown(wait=False, cancel_futures=True)
+            # every part is done (or failed); do not wait for workers still starting or exiting
+            starter.release()
         for k, result in done:
             results[k] = result
         return results
+
+
+class _WorkerStarter:
+    """Submits the worker tasks of a :class:`ProcessBackend` run from a background thread.
+
+    :meth:`futures` waits for the submissions (a worker has already taken a part, so the
+    forkserver is up); :meth:`release` shuts the pool down without waiting, from whichever
+    thread comes last, so the calling process never waits for a worker that is still
+    starting when it has computed every part itself.
+    """
+
+    def __init__(self, pool, count: int, payload: bytes, computations: list) -> None:
+        import threading
+
+        self._pool, self._count = pool, count
+        self._payload, self._computations = payload, computations
+        self._submitted: list = []
+        self._error: list[BaseException] = []
+        self._lock = threading.Lock()
+        self._finished = self._released = False
+        self._thread = threading.Thread(target=self._submit, name="qcorr-worker-start", daemon=True)
+        self._thread.start()
+
+    def _submit(self) -> None:
+        try:
+            for _ in range(self._count):
+                self._submitted.append(self._pool.submit(_take_parts, self._payload, self._computations))
+        except BaseException as err:  # noqa: BLE001 -- re-raised by futures() if anyone waits
+            self._error.append(err)
+        with self._lock:
+            self._finished = True
+            if self._released:
+                self._pool.shutdown(wait=False, cancel_futures=True)
+
+    def futures(self) -> list:
+        """The submitted futures (waits for the submissions)."""
+        self._thread.join()
+        if self._error:
+            raise self._error[0]
+        return list(self._submitted)
+
+    def release(self) -> None:
+        """Shut the pool down without waiting (now if the submissions are done, else after them)."""
+        with self._lock:
+            self._released = True
+            if self._finished:
+                self._pool.shutdown(wait=False, cancel_futures=True)
 
 
 class DaskBackend(BackendBase):
