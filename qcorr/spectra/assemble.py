@@ -23,11 +23,11 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
-import xarray as xr
 from numpy.typing import NDArray
 
 from qcorr import units
 from qcorr.constants import speed_of_light_cm_per_s, wavenumber_to_THz
+from qcorr.lazy_modules import lazy
 from qcorr.spectra.molecular_file import MolecularParts, add_molecular_variables
 from qcorr.spectra.position_noise import NoiseParts, measured_shares
 from qcorr.spectra.spectrum_file import (
@@ -36,6 +36,8 @@ from qcorr.spectra.spectrum_file import (
     GROUP_TABLE,
     provenance_attributes,
 )
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 __all__ = [
     "SpectrumParts",

@@ -18,9 +18,9 @@ from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
-import xarray as xr
 
 from qcorr.errors import SpectrumFileError
+from qcorr.lazy_modules import lazy
 from qcorr.spectra.assemble import SpectrumParts, spectrum_from_parts
 from qcorr.spectra.molecular_file import (
     combine_molecular_parts,
@@ -35,6 +35,8 @@ from qcorr.spectra.spectrum_file import (
     raw_segments_of,
 )
 from qcorr.spectra.stated_temperature import check_stated_temperature
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 __all__ = [
     "combine_blocks",

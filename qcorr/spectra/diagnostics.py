@@ -96,11 +96,13 @@ import warnings
 from dataclasses import asdict, dataclass
 
 import numpy as np
-import xarray as xr
 from scipy import special
 
 from qcorr import constants
 from qcorr.errors import QcorrWarning
+from qcorr.lazy_modules import lazy
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 ALIASING_BAND = 0.05
 ALIASING_FRACTION = 1e-3

@@ -41,9 +41,9 @@ import json
 import math
 
 import numpy as np
-import xarray as xr
 
 from qcorr.errors import TrajectoryError
+from qcorr.lazy_modules import lazy
 from qcorr.spectra.diagnostics import (
     FALSE_WARNING_PROBABILITY,
     Diagnostic,
@@ -51,6 +51,8 @@ from qcorr.spectra.diagnostics import (
     kinetic_temperature_statistics,
     student_t_quantile,
 )
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 __all__ = [
     "KINETIC_TEMPERATURE_FACTOR",

@@ -11,10 +11,12 @@ it.  What is computed from them is in :mod:`qcorr.baselines.kinetic`.
 from __future__ import annotations
 
 import numpy as np
-import xarray as xr
 
 from qcorr import constants as C
 from qcorr import units
+from qcorr.lazy_modules import lazy
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 #: spectrum-file variable: kinetic energy of the whole system per frame, kJ/mol (per mole of systems)
 KINETIC_ENERGY = "kinetic_energy"

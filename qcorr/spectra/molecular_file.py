@@ -24,12 +24,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import xarray as xr
 from numpy.typing import NDArray
 
 from qcorr import constants as C
 from qcorr import units
 from qcorr.errors import SpectrumFileError
+from qcorr.lazy_modules import lazy
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 __all__ = [
     "MolecularParts",

@@ -17,11 +17,13 @@ import os
 from pathlib import Path
 
 import numpy as np
-import xarray as xr
 
 from qcorr import units
 from qcorr.errors import SpectrumFileError
+from qcorr.lazy_modules import lazy
 from qcorr.safe_write import write_bytes_atomic
+
+xr = lazy("xarray")  # imported on first use: workers never need it (qcorr.lazy_modules)
 
 __all__ = [
     "COMBINE_ATTRIBUTES",
