@@ -2,7 +2,7 @@
 
 For a real-engine trajectory (OpenMM flexible TIP3P water, 648 atoms, 10,001 frames,
 157 MB TRR, made once by ``benchmarks/reading_data.py`` and cached outside the
-repository) and for synthetic TRR files of 250 and 4,000 atoms (over 100 MB each,
+repository) and for synthetic TRR files of 250, 4,000 and 1,000 atoms (100-370 MB,
 ``bench_scaling.py``'s writer), this script times whole processes, interpreter start
 and imports included, in turn, ``--repeats`` times each, and prints medians:
 
@@ -13,6 +13,8 @@ and imports included, in turn, ``--repeats`` times each, and prints medians:
   split whatever its size (``split_always.py``: the threshold ``PROCESS_MIN_ATOM_FRAMES``
   set to 0 for this run);
 * ``in-memory``: every velocity in one array and one FFT (``bench_scaling.measure_in_memory``);
+* the size from which ``--threads 2`` beats ``--threads 1`` (:func:`split_crossover`), which
+  sets ``PROCESS_MIN_ATOM_FRAMES``;
 * positions only (the water run's positions as XTC, MDAnalysis' writer, precision 0.001 nm):
   ``read`` of the positions, and ``qcorr spectrum --velocities-from positions``.
 
@@ -131,6 +133,27 @@ print(json.dumps({{"pickle": pickled - start, "to_worker": entered - pickled, "u
     return {k: statistics.median(r[k] for r in results) for k in results[0]}
 
 
+def split_crossover(top: Path, traj: Path, workdir: Path, repeats: int,
+                    stops=(2500, 5000, 7500, 10000)) -> list[dict]:
+    """Wall seconds of ``--threads 1`` and ``--threads 2`` (split whatever the size) on the first
+    *stop* frames of the water run, 1 ps segments: where two processes start to pay.
+
+    Both through ``split_always.py`` (the forkserver and its worker reaped, as in the table).
+    """
+    rows = []
+    for stop in stops:
+        got: dict[str, list[float]] = {"1": [], "2": []}
+        for _ in range(repeats):
+            for threads in ("1", "2"):
+                argv = _spectrum_argv(top, traj, workdir / f"cross_{threads}.nc", "--stop", str(stop),
+                                      "--segment-ps", "1", "--threads", threads)
+                got[threads].append(_child(argv)["wall"])
+        one, two = statistics.median(got["1"]), statistics.median(got["2"])
+        print(f"crossover: {stop} frames: --threads 1 {one:.2f} s, --threads 2 {two:.2f} s", file=sys.stderr)
+        rows.append({"frames": stop, "one": one, "two": two})
+    return rows
+
+
 def _cases(workdir: Path, skip_synthetic: bool) -> list[dict]:
     top, traj = reading_data.water_trajectory(20.0)
     xtc = reading_data.positions_only_xtc(top, traj)
@@ -139,7 +162,7 @@ def _cases(workdir: Path, skip_synthetic: bool) -> list[dict]:
              {"name": "water (OpenMM), XTC positions", "top": top, "traj": xtc, "what": "positions",
               "timestep_ps": 0.002}]
     if not skip_synthetic:
-        for atoms, frames in ((250, 18000), (4000, 1300)):
+        for atoms, frames in ((250, 18000), (4000, 1300), (1000, 16000)):
             case = scaling.Case(atoms, frames)
             stop, straj = scaling.make_case(workdir, case)
             cases.append({"name": f"synthetic {atoms} atoms, TRR", "top": stop, "traj": straj,
@@ -210,15 +233,16 @@ def main(argv: list[str] | None = None) -> int:
                    for label, runs in got.items()}
             rows.append((case, n_atoms, n_frames, size_MB, med))
         start_up = worker_start_up(cases[0]["top"], cases[0]["traj"], max(3, args.repeats))
+        crossover = split_crossover(cases[0]["top"], cases[0]["traj"], workdir, args.repeats)
         load_after = os.getloadavg()
-    text = report(rows, start_up, load_before, load_after, args.repeats)
+    text = report(rows, start_up, load_before, load_after, args.repeats, crossover)
     print(text)
     if args.write:
         write_section(text)
     return 0
 
 
-def report(rows, start_up, load_before, load_after, repeats) -> str:
+def report(rows, start_up, load_before, load_after, repeats, crossover) -> str:
     lines = [
         SECTION,
         "",
@@ -242,9 +266,6 @@ def report(rows, start_up, load_before, load_after, repeats) -> str:
             lines.append(f"| {case['name']} | {n_atoms} | {n_frames} | {size_MB:.0f} | {label} | {m['wall']:.2f} "
                          f"| {m['cpu']:.2f} | {m['MiB']:.0f} | {m['wall'] / read['wall']:.2f} "
                          f"| {m['cpu'] / read['cpu']:.2f} |")
-    water = rows[0][4]
-    # CPU per atom-frame of the part of the run that is split: the spectrum run less its imports
-    per_atom_frame = (water["spectrum"]["cpu"] - water["imports only"]["cpu"]) / (rows[0][1] * rows[0][2])
     lines += [
         "",
         (f"Worker start-up (median of {max(3, repeats)}, fresh process per repeat, water TRR): "
@@ -253,13 +274,29 @@ def report(rows, start_up, load_before, load_after, repeats) -> str:
          f"payload, {start_up['to_worker']:.2f} s forkserver start with `qcorr.spectra.analysis` "
          f"preloaded and fork, {start_up['unpickle']:.2f} s unpickling, which reopens the Universe)."),
         "",
-        (f"Break-even of two processes: the caller computes from the start and the worker joins after "
-         f"the start-up s, so two processes take about (c A + s) / 2 for A atom-frames at c seconds "
-         f"each, against c A for one: faster when A > s / c. With c = {per_atom_frame * 1e9:.0f} ns CPU "
-         f"per atom-frame (the water spectrum run less its imports) and s = {start_up['total']:.2f} s, "
-         f"A > {start_up['total'] / per_atom_frame:.2g} atom-frames on idle cores."),
+        ("The forkserver starts when the command starts and preloads the pipeline without xarray "
+         "and pandas while the command imports and opens, so a worker is usually ready about when "
+         "the calling process starts its own part; the start-up above is that of a fresh process "
+         "that asks for a worker at once."),
+        "",
+        "Where two processes start to pay (first frames of the water run, 648 atoms, 1 ps segments, "
+        f"medians of {repeats}; `--threads 2` split whatever the size):",
+        "",
+        "| frames | atom-frames | `--threads 1` wall s | `--threads 2` wall s | 2 / 1 |",
+        "|---:|---:|---:|---:|---:|",
+        *[f"| {r['frames']} | {r['frames'] * rows[0][1]:.2g} | {r['one']:.2f} | {r['two']:.2f} | "
+          f"{r['two'] / r['one']:.2f} |" for r in crossover],
+        "",
+        (f"`PROCESS_MIN_ATOM_FRAMES` ({_threshold():.0e} atom-frames) is set from this table: the smallest "
+         "size from which two processes were faster at every larger size."),
     ]
     return "\n".join(lines) + "\n"
+
+
+def _threshold() -> float:
+    from qcorr.cli.spectrum_command import PROCESS_MIN_ATOM_FRAMES
+
+    return float(PROCESS_MIN_ATOM_FRAMES)
 
 
 def write_section(text: str) -> None:

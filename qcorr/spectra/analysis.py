@@ -79,6 +79,11 @@ from qcorr.spectra.stated_temperature import check_stated_temperature
 __all__ = ["VibrationalSpectrum", "check_settings"]
 
 
+def _import_xarray() -> None:
+    """Import xarray (for the dataset built next) while worker processes finish their parts."""
+    import xarray  # noqa: F401
+
+
 @dataclass
 class _PartResult:
     """What one part sends back to the calling process (not the analysis object and its Universe)."""
@@ -351,7 +356,8 @@ class VibrationalSpectrum(AnalysisBase):
         workers = requested_workers(backend, n_workers, n_parts, verbose=bool(verbose))
         self._plan = self._plan_run(start, stop, step, workers if n_parts is None else int(n_parts))
         parts = len(self._plan.parts)
-        backend, run_workers, unsupported, processes = resolve_backend(backend, n_workers, parts)
+        backend, run_workers, unsupported, processes = resolve_backend(backend, n_workers, parts,
+                                                                        while_waiting=_import_xarray)
         serial = processes == 1 and isinstance(backend, (str, BackendSerial))
         self._worker_processes = processes
         self._progress_now = ("always" if verbose or (verbose is None and self._verbose) else self._progress) \

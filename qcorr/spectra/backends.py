@@ -97,6 +97,10 @@ class ProcessBackend(BackendBase):
         How workers start (never "fork"; see the module docstring).
     preload : sequence of str
         Modules the forkserver imports before forking workers.
+    while_waiting : callable, optional
+        Called by the calling process when it has no part left but workers still compute
+        (:class:`~qcorr.spectra.analysis.VibrationalSpectrum` imports xarray there, which
+        it needs next).
 
     Notes
     -----
@@ -106,11 +110,13 @@ class ProcessBackend(BackendBase):
     """
 
     def __init__(self, n_workers: int, *, start_method: str = "forkserver",
-                 preload: Sequence[str] = FORKSERVER_PRELOAD) -> None:
+                 preload: Sequence[str] = FORKSERVER_PRELOAD,
+                 while_waiting: Callable[[], object] | None = None) -> None:
         if start_method not in ("forkserver", "spawn"):
             raise ConfigError(f"start_method {start_method!r}: choose forkserver or spawn")
         self.start_method = start_method
         self.preload = tuple(preload)
+        self.while_waiting = while_waiting
         super().__init__(n_workers=n_workers)
 
     def apply(self, func: Callable, computations: list) -> list:
@@ -146,6 +152,8 @@ class ProcessBackend(BackendBase):
             _share_counter(counter)
             done = _take_parts(None, computations, func)
             if len(done) < len(computations):  # workers took the others: collect them
+                if self.while_waiting is not None:
+                    self.while_waiting()
                 for future in starter.futures():
                     done += future.result()
         except BrokenProcessPool:
@@ -292,11 +300,12 @@ def requested_workers(backend, n_workers: int | None, n_parts: int | None, *, ve
     return 1 if n_workers is None else int(n_workers)
 
 
-def resolve_backend(backend, n_workers: int | None, parts: int):
+def resolve_backend(backend, n_workers: int | None, parts: int, *,
+                    while_waiting: Callable[[], object] | None = None):
     """The backend object and ``run`` arguments for *parts* parts.
 
-    "multiprocessing" becomes a :class:`ProcessBackend` and "dask" a :class:`DaskBackend`
-    (both with at most *parts* workers); "serial" and backend objects are kept.
+    "multiprocessing" becomes a :class:`ProcessBackend` (with *while_waiting*) and "dask" a
+    :class:`DaskBackend` (both with at most *parts* workers); "serial" and backend objects are kept.
 
     Returns
     -------
@@ -313,7 +322,7 @@ def resolve_backend(backend, n_workers: int | None, parts: int):
     """
     workers = 1 if n_workers is None else int(n_workers)
     if backend == "multiprocessing":
-        backend = ProcessBackend(min(workers, parts))
+        backend = ProcessBackend(min(workers, parts), while_waiting=while_waiting)
     elif backend == "dask":
         backend = DaskBackend(None if n_workers is None else min(workers, parts))
     if backend == "serial":
