@@ -57,7 +57,9 @@ def _clock_text(seconds: float) -> str:
 def heartbeat_line(done: int, total: int | None, elapsed_s: float, desc: str, unit: str) -> str:
     """One heartbeat line: items done (of total), rate, and time left when the total is known."""
     rate = done / elapsed_s if elapsed_s > 0 else math.inf
-    rate_text = f"{rate:.4g} {unit}s/s" if math.isfinite(rate) else f"- {unit}s/s"
+    # whole numbers from 1000 on (never an exponent: 15460 frames/s, not 1.546e+04)
+    number = (f"{rate:.0f}" if rate >= 1000 else f"{rate:.4g}") if math.isfinite(rate) else "-"
+    rate_text = f"{number} {unit}s/s"
     if total:
         left = (total - done) / rate if rate > 0 and math.isfinite(rate) else 0.0
         return (f"qcorr: {desc} {done}/{total} ({100.0 * done / total:.0f} %), {rate_text}, "
