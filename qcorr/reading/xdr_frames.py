@@ -123,6 +123,12 @@ def _decode(filename, kind: str, offsets, n_atoms: int, start: int, stop: int, n
     if stop <= start:
         return
     frame = XdrFrame(n_atoms, length_factor)
+    if kind == "trr":
+        from qcorr.reading.trr_frames import trr_frames, trr_layout
+
+        if trr_layout(filename, offsets, n_atoms):  # single precision: numpy's byte swap
+            yield from trr_frames(filename, offsets, n_atoms, start, stop, frame, length_factor, speed_factor)
+            return
     forces = np.empty((n_atoms, 3), np.float32) if kind == "trr" else None
     handle = (TRRFile if kind == "trr" else XTCFile)(str(filename))
     try:
