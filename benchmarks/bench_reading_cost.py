@@ -287,8 +287,9 @@ def report(rows, start_up, load_before, load_after, repeats, crossover) -> str:
         *[f"| {r['frames']} | {r['frames'] * rows[0][1]:.2g} | {r['one']:.2f} | {r['two']:.2f} | "
           f"{r['two'] / r['one']:.2f} |" for r in crossover],
         "",
-        (f"`PROCESS_MIN_ATOM_FRAMES` ({_threshold():.0e} atom-frames) is set from this table: the smallest "
-         "size from which two processes were faster at every larger size."),
+        (f"`PROCESS_MIN_ATOM_FRAMES` ({_threshold():.2g} atom-frames) is set from this table and the "
+         "`--threads 2` rows of the table above (split whatever the size): the comment beside "
+         "it in `qcorr/cli/spectrum_command.py` says how."),
     ]
     return "\n".join(lines) + "\n"
 

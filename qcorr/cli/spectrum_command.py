@@ -22,10 +22,12 @@ DESCRIPTION = (
 )
 
 #: smallest frame-window work (atoms x frames read) split over worker processes by --threads;
-#: measured crossover (benchmarks/bench_reading_cost.py, docs/performance.md "Reading cost"):
-#: two processes were faster than one from about 5e6 atom-frames (OpenMM water, 648 atoms,
-#: 7,500 frames) on 2 idle cores; below it the worker arrives too late to pay for itself
-PROCESS_MIN_ATOM_FRAMES = 5_000_000
+#: measured (benchmarks/bench_reading_cost.py, docs/performance.md "Reading cost", 2 idle
+#: cores): with reading as cheap as it now is, two processes were slower than one on the
+#: water run up to 6.5e6 atom-frames and on 4,000 atoms x 1,300 frames (5.2e6), and level
+#: or faster on 1,000 atoms x 16,000 frames (1.6e7: 3.87 vs 3.97 s) and 250 x 18,000
+#: (4.5e6: 2.59 vs 2.95 s); the fixed costs of the calling process are not shared
+PROCESS_MIN_ATOM_FRAMES = 16_000_000
 #: parts per process when a job is split: one, since every part re-reads the frames of
 #: the segment that straddles its start (half a segment with the default overlap) and the
 #: worker server is started at once (qcorr.spectra.worker_server); measured in
@@ -113,7 +115,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                      help="compute only block I (1-based) of N contiguous frame blocks; "
                           "join the N block files with 'qcorr combine'")
     run.add_argument("--threads", type=count, default=1, metavar="N",
-                     help="cores to use (count): a long frame window (at least 5e6 atom-frames) "
+                     help="cores to use (count): a long frame window (at least 1.6e7 atom-frames) "
                           "is split over N processes in parts of whole segments, joined as "
                           "'qcorr combine' joins blocks (equal to one process up to rounding); "
                           "a shorter one uses N FFT threads")
