@@ -88,23 +88,17 @@ def test_blocks_equal_frame_by_frame(tmp_path, block_frames, subset):
     assert sa.com_kinetic_sum == sb.com_kinetic_sum and sa.box_volume_sum_A3 == sb.box_volume_sum_A3
 
 
-def test_a_bad_interval_names_the_same_frame(tmp_path):
-    opened = _trajectory(tmp_path / "t.trr", bad_time_at=77)
+@pytest.mark.parametrize("fault, error, words", [
+    ({"bad_time_at": 77}, SamplingError, "frame 77"),
+    ({"nan_at": 90}, TrajectoryError, "atom index 5"),
+])
+def test_a_bad_frame_is_named_as_frame_by_frame(tmp_path, fault, error, words):
+    """A bad interval or a non-finite velocity gives the frame-by-frame sampler's message."""
+    opened = _trajectory(tmp_path / "t.trr", **fault)
     channels = _channels(opened, False)
     window = FrameWindow(0, N_FRAMES, 1, DT, 0.0)
-    with pytest.raises(SamplingError) as one:
+    with pytest.raises(error) as one:
         _frame_by_frame(opened, channels, window, 0, None)
-    with pytest.raises(SamplingError) as two:
+    with pytest.raises(error) as two:
         _in_blocks(opened, channels, window, 0, None, 64)
-    assert str(one.value) == str(two.value) and "frame 77" in str(two.value)
-
-
-def test_a_non_finite_velocity_names_the_same_frame_and_atom(tmp_path):
-    opened = _trajectory(tmp_path / "t.trr", nan_at=90)
-    channels = _channels(opened, False)
-    window = FrameWindow(0, N_FRAMES, 1, DT, 0.0)
-    with pytest.raises(TrajectoryError) as one:
-        _frame_by_frame(opened, channels, window, 0, None)
-    with pytest.raises(TrajectoryError) as two:
-        _in_blocks(opened, channels, window, 0, None, 64)
-    assert str(one.value) == str(two.value) and "atom index 5" in str(two.value)
+    assert str(one.value) == str(two.value) and words in str(two.value)

@@ -56,16 +56,18 @@ class PartPass:
         # stored velocities stay in the reader's single precision through the atomic estimator
         # (complex64 transforms, float64 sums; see SegmentAccumulator); the molecular pass
         # and finite differences work in float64
-        self._blocks = None
+        # atomic spectra of stored velocities: a block of frames per numpy call (same values);
+        # differences of positions and the molecular pass: frame by frame
+        self._blocks = self._sampler = None
         if velocities_from == "stored" and not molecular:
-            # atomic spectra of stored velocities: a block of frames per numpy call, same values
             self._blocks = StoredVelocityBlocks(
                 opened, channels, plan.window, statistics=self.statistics,
                 count_from=part.first_sample, count_stop=part.count_stop)
-        self._sampler = VelocitySampler(
-            opened, channels, plan.window, source=velocities_from,
-            dtype=np.float64 if molecular else np.float32, statistics=self.statistics,
-            count_from=part.first_sample, count_stop=part.count_stop)
+        else:
+            self._sampler = VelocitySampler(
+                opened, channels, plan.window, source=velocities_from,
+                dtype=np.float64 if molecular else np.float32, statistics=self.statistics,
+                count_from=part.first_sample, count_stop=part.count_stop)
         self._accumulator = SegmentAccumulator(
             plan.settings, channels.masses, members, 3, fft_threads,
             first_segment=part.first_segment, stop_segment=part.stop_segment)
